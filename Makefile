@@ -1,0 +1,36 @@
+# Two commands do all set-up on a fresh machine: `make demo` and `make test`.
+PY      ?= python3
+VENV    ?= .venv
+BIN     := $(VENV)/bin
+STAMP   := $(VENV)/.installed
+
+.PHONY: demo test test-slow bench studies lint clean
+
+$(BIN)/python:
+	$(PY) -m venv $(VENV)
+
+$(STAMP): pyproject.toml | $(BIN)/python
+	$(BIN)/python -m pip install --quiet --upgrade pip
+	$(BIN)/python -m pip install --quiet -e '.[test]'
+	touch $(STAMP)
+
+demo: $(STAMP)
+	$(BIN)/capacity demo --out results/demo
+
+test: $(STAMP)
+	$(BIN)/python -m pytest -q
+
+test-slow: $(STAMP)
+	$(BIN)/python -m pytest -q -m slow
+
+bench: $(STAMP)
+	$(BIN)/python benchmarks/run_all.py
+
+studies: $(STAMP)
+	$(BIN)/python studies/validate_responses.py
+
+lint: $(STAMP)
+	$(BIN)/ruff check .
+
+clean:
+	rm -rf $(VENV) build *.egg-info .pytest_cache

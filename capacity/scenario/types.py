@@ -1,0 +1,153 @@
+"""Immutable scenario objects, all quantities in SI units.
+
+A :class:`Scenario` is what the loader returns and what every later stage takes. Construct them directly from
+Python or with :func:`capacity.load_scenario`; validation lives in :mod:`capacity.scenario.validate`.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from dataclasses import dataclass, field
+
+import numpy as np
+
+ReceiverKind = str  # "absorbing" | "passive"
+
+
+@dataclass(frozen=True)
+class Medium:
+    """Unbounded 3-D fluid.
+
+    diffusion : m^2/s, > 0.
+    degradation : first-order degradation rate of the signalling molecule, 1/s, >= 0.
+    """
+
+    diffusion: float
+    degradation: float = 0.0
+
+
+@dataclass(frozen=True)
+class Emitter:
+    """A point source. ``position`` in metres, shape (3,)."""
+
+    name: str
+    position: tuple[float, float, float]
+
+
+@dataclass(frozen=True)
+class Receiver:
+    """A sphere that counts molecules.
+
+    centre : metres, shape (3,).
+    radius : metres, > 0.
+    kind : ``"absorbing"`` (counts each molecule once, at first contact, and removes it) or ``"passive"``
+        (counts the molecules inside the sphere at one instant per slot).
+    sample_offset : passive receivers only: seconds from the start of a slot to the sampling instant,
+        in (0, symbol_interval]; ``None`` means the end of the slot.
+    """
+
+    name: str
+    centre: tuple[float, float, float]
+    radius: float
+    kind: ReceiverKind = "absorbing"
+    sample_offset: float | None = None
+
+
+@dataclass(frozen=True)
+class Channel:
+    """How the responses are turned into a counting channel.
+
+    symbol_interval : seconds, > 0 (slot length Ts).
+    memory : number of lags kept exactly (L, so L+1 slots: lag 0..L), or ``"auto"``.
+    memory_tolerance : for ``memory="auto"``: the smallest L such that every later slot's hit probability is at
+        most this fraction of the pair's largest slot (dimensionless).
+    background : mean stray counts per slot, one per receiver (tuple of length R), >= 0.
+    counting : ``"poisson"`` or ``"binomial"``.
+    residual : what happens to the mass counted after lag L: ``"interference"`` (added as mean interference)
+        or ``"drop"``.
+    response : default response model, ``"lone"`` | ``"shadowed"`` | ``"particles"``.
+    particles : molecules simulated per emitter by the particle model.
+    time_step : particle model step in seconds, ``None`` for automatic.
+    seed : integer seed for every random draw made for this scenario.
+    """
+
+    symbol_interval: float
+    memory: int | str = "auto"
+    memory_tolerance: float = 0.01
+    background: tuple[float, ...] = ()
+    counting: str = "poisson"
+    residual: str = "interference"
+    response: str = "shadowed"
+    particles: int = 20000
+    time_step: float | None = None
+    seed: int = 0
+
+
+@dataclass(frozen=True)
+class Signalling:
+    """The signalling scheme and its molecule budget.
+
+    scheme : ``"amplitude"`` | ``"spatial"`` | ``"multiplex"`` | ``"hybrid"``.
+    levels : number of amplitude levels including 0 (2 = on-off keying).
+    peak : largest release of one emitter in one slot, molecules (> 0).
+    budget : mean molecules per symbol, all emitters together (> 0), or ``None`` for no mean constraint.
+    emitter : for ``amplitude``: the index of the emitter that signals (default 0).
+    silent : for ``spatial``/``hybrid``: whether "no emitter fires" is a symbol.
+    amplitudes : explicit release levels (molecules), overriding ``levels``/``peak`` placement, or ``None``.
+    """
+
+    scheme: str = "amplitude"
+    levels: int = 2
+    peak: float = 1000.0
+    budget: float | None = None
+    emitter: int = 0
+    silent: bool = True
+    amplitudes: tuple[float, ...] | None = None
+
+
+@dataclass(frozen=True)
+class Scenario:
+    """A whole layout: medium, emitters, receivers, channel settings and signalling scheme (SI units)."""
+
+    name: str
+    medium: Medium
+    emitters: tuple[Emitter, ...]
+    receivers: tuple[Receiver, ...]
+    channel: Channel
+    signalling: Signalling = field(default_factory=Signalling)
+
+    # -- convenient array views -------------------------------------------------------------------
+    @property
+    def emitter_positions(self) -> np.ndarray:
+        """Emitter positions, metres, shape (E, 3)."""
+        return np.asarray([e.position for e in self.emitters], dtype=float).reshape(-1, 3)
+
+    @property
+    def receiver_centres(self) -> np.ndarray:
+        """Receiver centres, metres, shape (R, 3)."""
+        return np.asarray([r.centre for r in self.receivers], dtype=float).reshape(-1, 3)
+
+    @property
+    def receiver_radii(self) -> np.ndarray:
+        """Receiver radii, metres, shape (R,)."""
+        return np.asarray([r.radius for r in self.receivers], dtype=float)
+
+    @property
+    def background(self) -> np.ndarray:
+        """Mean background counts per slot, shape (R,)."""
+        b = np.asarray(self.channel.background, dtype=float)
+        if b.size == 0:
+            return np.zeros(len(self.receivers))
+        return np.broadcast_to(b, (len(self.receivers),)).copy()
+
+    def replace(self, **changes) -> "Scenario":
+        """A copy with top-level fields replaced (``dataclasses.replace``)."""
+        return dataclasses.replace(self, **changes)
+
+    def with_channel(self, **changes) -> "Scenario":
+        """A copy with channel fields replaced, e.g. ``with_channel(symbol_interval=0.2)``."""
+        return dataclasses.replace(self, channel=dataclasses.replace(self.channel, **changes))
+
+    def with_signalling(self, **changes) -> "Scenario":
+        """A copy with signalling fields replaced."""
+        return dataclasses.replace(self, signalling=dataclasses.replace(self.signalling, **changes))

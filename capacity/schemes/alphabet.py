@@ -1,0 +1,36 @@
+"""The alphabet type: release vectors and what each costs."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+
+@dataclass(frozen=True)
+class Alphabet:
+    """A signalling alphabet.
+
+    scheme : name of the scheme that made it (``"amplitude"``, ``"spatial"``, ``"multiplex"``, ``"hybrid"``).
+    symbols : shape (S, E), molecules released by each emitter at the start of the slot for each symbol.
+    labels : S readable names, e.g. ``"e0:500"``.
+    bits : shape (S, B) 0/1 bit labels used to count bit errors (B = ceil(log2 S)); Gray-like where it helps.
+    """
+
+    scheme: str
+    symbols: np.ndarray
+    labels: tuple[str, ...]
+    bits: np.ndarray
+
+    @property
+    def cost(self) -> np.ndarray:
+        """Molecules per symbol (all emitters together), shape (S,)."""
+        return np.asarray(self.symbols, dtype=float).sum(axis=1)
+
+    @property
+    def size(self) -> int:
+        return int(np.shape(self.symbols)[0])
+
+    @property
+    def emitters(self) -> int:
+        return int(np.shape(self.symbols)[1])
