@@ -1,0 +1,29 @@
+"""``capacity check SCENARIO``: validate a scenario file and summarise its layout."""
+
+from __future__ import annotations
+
+from capacity.cli._common import add_scenario_argument, dump_json, load
+
+
+def add_parser(sub) -> None:
+    p = sub.add_parser(
+        "check",
+        help="validate a scenario file and summarise distances, gaps, peak times and warnings",
+        description=(
+            "Validate a scenario file and summarise its layout: emitter-receiver distances and gaps, the lone "
+            "eventual capture and peak arrival time d^2/(6D) of each pair, gaps between receivers, and warnings "
+            "for legal but suspicious layouts. Exit status 2 on invalid input."
+        ),
+    )
+    add_scenario_argument(p)
+    p.add_argument("--json", action="store_true", help="print the summary as JSON (SI units)")
+    p.set_defaults(func=run)
+
+
+def run(args) -> int:
+    from capacity.scenario.summary import format_summary, summarise
+
+    scenario = load(args.scenario)
+    summary = summarise(scenario)
+    print(dump_json(summary) if args.json else format_summary(summary))
+    return 0

@@ -1,0 +1,1 @@
+"""Reporting: plots and tables written by the command line and the studies."""
