@@ -1,0 +1,110 @@
+"""``capacity compare SCENARIO``: signalling schemes side by side at equal molecule budget, and over budgets."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from capacity.cli._common import SAFETY, add_scenario_argument, dump_json, fmt, load
+from capacity.compare import SCHEMES
+from capacity.errors import InputError
+
+
+def parse_budgets(text: str) -> np.ndarray:
+    """``LO:HI:N`` -> N budgets spaced logarithmically from LO to HI (molecules per symbol)."""
+    parts = text.split(":")
+    try:
+        lo, hi, n = float(parts[0]), float(parts[1]), int(parts[2])
+    except (ValueError, IndexError):
+        raise InputError("--budgets", text, "expected LO:HI:N", "write e.g. --budgets 5:200:8") from None
+    if not (0 < lo < hi) or n < 2 or not np.isfinite(hi):
+        raise InputError("--budgets", text, "need 0 < LO < HI and N >= 2", "write e.g. --budgets 5:200:8")
+    return np.geomspace(lo, hi, n)
+
+
+def add_parser(sub) -> None:
+    p = sub.add_parser(
+        "compare",
+        help="spatial vs amplitude (and mixed) signalling at equal budget; rate-versus-budget curves",
+        description=(
+            "Compare signalling schemes on one layout at the same mean molecule budget: ISI-free capacity, "
+            "i.i.d. information rate with ISI and its bounds, and each detector's symbol error rate and the rate "
+            "its hard decisions support, per symbol, second and molecule. With --budgets, also rate-versus-budget "
+            "curves (CSV and PNG) with the bounds as a shaded band."
+        ),
+    )
+    add_scenario_argument(p)
+    p.add_argument("--schemes", metavar="LIST",
+                   help=f"comma-separated schemes (default: all the layout supports; from {', '.join(SCHEMES)})")
+    p.add_argument("--budget", type=float, metavar="MOLECULES",
+                   help="mean molecules per symbol for the side-by-side table (default: the scenario's)")
+    p.add_argument("--budgets", metavar="LO:HI:N", help="budget range for rate-versus-budget curves (log spaced)")
+    p.add_argument("--symbols", type=int, default=10_000, metavar="N",
+                   help="symbols per forward-recursion run and per detector simulation (default 10000)")
+    p.add_argument("--runs", type=int, default=4, metavar="K", help="independent runs for standard errors")
+    p.add_argument("--seed", type=int, metavar="S", help="random seed (default: the scenario's)")
+    p.add_argument("--model", choices=("lone", "shadowed", "particles"), help="response model override")
+    p.add_argument("--json", action="store_true", help="print JSON")
+    p.add_argument("--plot", metavar="FILE", help="PNG of the rate-versus-budget curves (needs --budgets)")
+    p.add_argument("--out", metavar="DIR", help="write compare.json, curves.csv and curves.png into DIR")
+    p.set_defaults(func=run)
+
+
+def format_table(scenario, records) -> str:
+    ts = scenario.channel.symbol_interval
+    lines = [f"{scenario.name}: schemes at a mean budget of {fmt(records[0]['budget'])} molecules/symbol, "
+             f"slot {ts * 1e3:g} ms", ""]
+    head = f"  {'scheme':<11}{'ISI-free':>10}{'rate':>9}{'+/-':>9}{'lower':>9}{'upper':>9}{'bits/s':>9}{'bits/mol':>10}"
+    lines.append(head + "   (bits/symbol unless stated)")
+    for r in records:
+        lines.append(f"  {r['scheme']:<11}{fmt(r['isi_free_capacity']):>10}{fmt(r['information_rate']):>9}"
+                     f"{fmt(r['stderr']):>9}{fmt(r['lower_bound']):>9}{fmt(r['upper_bound']):>9}"
+                     f"{fmt(r['bits_per_second']):>9}{fmt(r['bits_per_molecule']):>10}")
+    lines.append("")
+    lines.append(f"  {'scheme':<11}{'detector':<19}{'SER':>9}{'95% interval':>22}{'hard rate':>11}")
+    for r in records:
+        for d in r["detectors"]:
+            if "skipped" in d:
+                lines.append(f"  {r['scheme']:<11}{d['name']:<19}  skipped: {d['skipped']}")
+                continue
+            lo, hi = d["ser_interval"]
+            lines.append(f"  {r['scheme']:<11}{d['name']:<19}{fmt(d['symbol_error_rate']):>9}"
+                         f"{'[' + fmt(lo) + ', ' + fmt(hi) + ']':>22}{fmt(d['rate']):>11}")
+    lines.append(f"  {SAFETY}")
+    return "\n".join(lines)
+
+
+def run(args) -> int:
+    from tqdm import tqdm
+
+    from capacity.compare import applicable_schemes, budget_sweep, compare_schemes
+    from capacity.physics.response import channel_response
+
+    scenario = load(args.scenario)
+    schemes = [s.strip() for s in args.schemes.split(",")] if args.schemes else None
+    budgets = parse_budgets(args.budgets) if args.budgets else None
+    out = Path(args.out) if args.out else None
+    response = channel_response(scenario, args.model, seed=args.seed)
+    records = compare_schemes(scenario, response, schemes, budget=args.budget, n_symbols=args.symbols,
+                              n_runs=args.runs, detector_symbols=args.symbols, seed=args.seed)
+    result = {"scenario": scenario.name, "model": response.model, "units": "bits",
+              "symbol_interval": scenario.channel.symbol_interval, "schemes": records, "caution": SAFETY}
+    if budgets is not None:
+        names = applicable_schemes(scenario, schemes)
+        with tqdm(total=len(names) * len(budgets), desc="budget sweep", disable=args.json) as bar:
+            curves = budget_sweep(scenario, response, budgets, names, n_symbols=max(args.symbols // 2, 1000),
+                                  n_runs=args.runs, seed=args.seed,
+                                  csv_path=(out / "curves.csv") if out else None, progress=bar.update)
+        result["curves"] = curves
+        from capacity.report.plots import plot_rate_curves
+
+        plot_path = args.plot or (out / "curves.png" if out else None)
+        if plot_path:
+            plot_rate_curves(curves, plot_path)
+            plot_rate_curves(curves, Path(plot_path).with_name(Path(plot_path).stem + "_per_second.png"),
+                             per_second=True)
+    if out:
+        dump_json(result, out / "compare.json")
+    print(dump_json(result) if args.json else format_table(scenario, records))
+    return 0
