@@ -1,0 +1,6 @@
+"""python -m capacity.cli"""
+import sys
+
+from capacity.cli import main
+
+sys.exit(main())

@@ -1,0 +1,125 @@
+"""The command line, run for real as a user would (subprocess), on small scenario files."""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+import textwrap
+
+import numpy as np
+import pytest
+
+SMALL = textwrap.dedent(
+    """
+    name = "cli test pair"
+    [medium]
+    diffusion = "80 um^2/s"
+    [[emitter]]
+    name = "tx"
+    position = [0, 0, 0]
+    [[receiver]]
+    name = "rx"
+    centre = ["10 um", 0, 0]
+    radius = "5 um"
+    [channel]
+    symbol_interval = "300 ms"
+    memory = 2
+    background = 0.3
+    response = "lone"
+    [signalling]
+    scheme = "amplitude"
+    levels = 2
+    peak = 40
+    budget = 15
+    """
+)
+
+
+def _run(*args, check=True):
+    proc = subprocess.run([sys.executable, "-m", "capacity.cli", *args], capture_output=True, text=True,
+                          timeout=600)
+    if check and proc.returncode != 0:
+        raise AssertionError(f"exit {proc.returncode}\nstdout:\n{proc.stdout}\nstderr:\n{proc.stderr}")
+    return proc
+
+
+@pytest.fixture()
+def small(tmp_path):
+    path = tmp_path / "small.toml"
+    path.write_text(SMALL)
+    return path
+
+
+def test_help_lists_every_subcommand():
+    out = _run("--help").stdout
+    for name in ("check", "response", "rate", "compare", "demo"):
+        assert name in out
+
+
+def test_check_json_reports_lone_capture(small):
+    data = json.loads(_run("check", str(small), "--json").stdout)
+    text = json.dumps(data)
+    # lone eventual capture r/(r+d) = 5/10 (Yilmaz et al. 2014, closed form) appears in the summary
+    assert "0.5" in text
+
+
+def test_response_json_keys_and_closed_form(small, tmp_path):
+    png = tmp_path / "resp.png"
+    data = json.loads(_run("response", str(small), "--json", "--plot", str(png)).stdout)
+    for key in ("hits", "tail", "stderr", "model", "slot_edges", "emitters", "receivers"):
+        assert key in data
+    hits = np.asarray(data["hits"])
+    assert hits.shape == (1, 1, 3)
+    # slot 0 equals F(Ts) = r/(r+d) erfc(d / sqrt(4 D Ts)) (Yilmaz et al., IEEE Commun. Lett. 2014)
+    from scipy.special import erfc
+
+    r, d, D, ts = 5e-6, 5e-6, 80e-12, 0.3
+    assert hits[0, 0, 0] == pytest.approx(r / (r + d) * erfc(d / np.sqrt(4 * D * ts)), rel=1e-10)
+    assert png.stat().st_size > 1000
+
+
+def test_rate_json_keys_and_ordering(small):
+    data = json.loads(_run("rate", str(small), "--json", "--symbols", "3000", "--runs", "4").stdout)
+    for key in ("isi_free_capacity", "gap", "input_distribution", "alphabet", "iid_input", "information_rate",
+                "stderr", "lower_bound", "upper_bound", "bounds", "bits_per_second", "bits_per_molecule",
+                "mean_molecules", "hits", "units"):
+        assert key in data, key
+    assert data["units"] == "bits"
+    assert data["mean_molecules"] <= 15 + 1e-6  # the budget holds
+    b = data["bounds"]
+    tol = 4 * max(data["stderr"], 1e-3)
+    # I_sbs <= I_dfe <= I_iid <= I_mf (chain rule; references.md, single-letter bounds)
+    assert b["sbs"]["rate"] <= b["dfe"]["rate"] + tol
+    assert b["dfe"]["rate"] <= data["information_rate"] + tol
+    assert data["information_rate"] <= b["mf"]["rate"] + tol
+    # ISI only removes information relative to the ISI-free channel at the same input law? Not in general; but
+    # the ISI-free capacity certificate must bracket the capacity: gap is small and non-negative
+    assert 0 <= data["gap"] < 1e-6
+
+
+@pytest.mark.parametrize(
+    "replace, field",
+    [
+        (('diffusion = "80 um^2/s"', "diffusion = -1"), "diffusion"),
+        (('radius = "5 um"', 'radious = "5 um"'), "radius"),
+        (('centre = ["10 um", 0, 0]', 'centre = ["3 um", 0, 0]'), "receiver"),
+        (('symbol_interval = "300 ms"', 'symbol_interval = "300 um"'), "symbol_interval"),
+    ],
+)
+def test_bad_input_exits_2_without_traceback(tmp_path, replace, field):
+    path = tmp_path / "bad.toml"
+    path.write_text(SMALL.replace(*replace))
+    proc = _run("check", str(path), check=False)
+    assert proc.returncode == 2
+    assert "Traceback" not in proc.stderr
+    assert field in proc.stderr
+
+
+def test_unreadable_file_exits_2(tmp_path):
+    proc = _run("check", str(tmp_path / "missing.toml"), check=False)
+    assert proc.returncode == 2 and "Traceback" not in proc.stderr
+    bad = tmp_path / "notoml.toml"
+    bad.write_text("name = [unclosed\n")
+    proc = _run("check", str(bad), check=False)
+    assert proc.returncode == 2 and "Traceback" not in proc.stderr
