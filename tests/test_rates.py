@@ -64,7 +64,7 @@ def test_budget_binds_and_per_unit_arithmetic():
     d = rates.to_dict()
     assert d["bits_per_second"]["information_rate"] == pytest.approx(d["information_rate"] / 0.1)
     assert d["bits_per_molecule"]["information_rate"] == pytest.approx(d["information_rate"] / 4.0)
-    # ISI can only lower the information of the matched-filter genie below... the genie bound stays above the rate
+    # the matched-filter genie is an upper bound on the i.i.d. rate (references.md, single-letter bounds)
     assert d["information_rate"] <= d["upper_bound"] + 4 * d["stderr"] + 1e-3
 
 
@@ -85,4 +85,5 @@ def test_interference_lowers_rate_and_drop_ignores_it():
     assert np.all(drop.interference == 0)
     assert np.all(keep.interference > 0)
     # more noise at the same law: the ISI-as-noise bound cannot rise (data-processing; common practice)
-    assert keep.bounds["sbs"].rate <= drop.bounds["sbs"].rate + 1e-9
+    se = keep.bounds["sbs"].stderr + drop.bounds["sbs"].stderr
+    assert keep.bounds["sbs"].rate <= drop.bounds["sbs"].rate + 4 * se + 1e-9
