@@ -1,0 +1,321 @@
+"""Checks on a :class:`~capacity.scenario.types.Scenario`: values, names and geometry.
+
+:func:`validate_scenario` raises :class:`~capacity.errors.InputError` for anything the later stages cannot use
+(non-positive diffusion, an emitter inside a receiver, overlapping receivers, ...). The loader calls it, and it
+works the same on scenarios built directly in Python, so error messages use the same field names as the scenario
+file (``receiver[1].radius``). :func:`geometry_warnings` lists legal but suspicious choices as plain sentences.
+"""
+
+from __future__ import annotations
+
+import math
+import numbers
+
+import numpy as np
+
+from capacity.errors import InputError
+from capacity.scenario.types import Scenario
+
+__all__ = [
+    "COUNTING_LAWS",
+    "MAX_MEMORY",
+    "RECEIVER_KINDS",
+    "RESIDUAL_RULES",
+    "RESPONSE_MODELS",
+    "SCHEMES",
+    "geometry_warnings",
+    "hitting_peak_time",
+    "validate_scenario",
+]
+
+RECEIVER_KINDS = ("absorbing", "passive")
+COUNTING_LAWS = ("poisson", "binomial")
+RESIDUAL_RULES = ("interference", "drop")
+RESPONSE_MODELS = ("lone", "shadowed", "particles")
+SCHEMES = ("amplitude", "spatial", "multiplex", "hybrid")
+#: hard cap on the number of lags kept exactly (memory = L keeps L + 1 slots)
+MAX_MEMORY = 2000
+
+# thresholds of geometry_warnings (fractions of a radius, of a slot, ...)
+_NEAR_SURFACE = 0.1
+_LATE_PEAK_SLOTS = 5.0
+_EARLY_SAMPLE = 0.01
+_COARSE_STEP = 0.1
+_HEAVY_WORK = 5e7
+
+
+def um(x: float) -> str:
+    """A length in metres written in micrometres, e.g. ``'5 um'``."""
+    return f"{x * 1e6:.4g} um"
+
+
+def hitting_peak_time(distance, diffusion, degradation=0.0):
+    """Time at which ``t^(-3/2) exp(-distance^2/(4 D t) - k t)`` peaks, seconds.
+
+    For an absorbing sphere with ``distance`` = gap d from the point source to its surface this is the peak of
+    the first-hitting density ``f(t) e^(-k t)`` (Yilmaz et al., IEEE Commun. Lett. 18(6), 2014; degradation as
+    in Heren et al., IEEE TMBMC 1(2), 2015). Setting the log-derivative to zero gives
+    ``k t^2 + (3/2) t - d^2/(4D) = 0``, solved here in the cancellation-free form
+    ``t* = (d^2/(2D)) / (3/2 + sqrt(9/4 + k d^2/D))``, which is ``d^2/(6D)`` when ``k = 0``.
+
+    Parameters
+    ----------
+    distance : float or array, metres (>= 0).
+    diffusion : float, m^2/s (> 0).
+    degradation : float, 1/s (>= 0).
+    """
+    d2 = np.square(np.asarray(distance, dtype=float))
+    return (d2 / (2.0 * diffusion)) / (1.5 + np.sqrt(2.25 + degradation * d2 / diffusion))
+
+
+# -- small value checks ------------------------------------------------------------------------------------------
+def _is_int(x) -> bool:
+    return isinstance(x, numbers.Integral) and not isinstance(x, bool)
+
+
+def _finite(field, value, fix):
+    if isinstance(value, bool) or not isinstance(value, numbers.Real) or not math.isfinite(float(value)):
+        raise InputError(field, value, "must be a finite number", fix)
+    return float(value)
+
+
+def _positive(field, value, fix):
+    if _finite(field, value, fix) <= 0.0:
+        raise InputError(field, value, "must be positive", fix)
+
+
+def _non_negative(field, value, fix):
+    if _finite(field, value, fix) < 0.0:
+        raise InputError(field, value, "must not be negative", fix)
+
+
+def _point(field, value, fix):
+    if not isinstance(value, (tuple, list, np.ndarray)) or len(value) != 3:
+        raise InputError(field, value, "must be a list of 3 coordinates [x, y, z]", fix)
+    for k, c in enumerate(value):
+        _finite(f"{field}[{k}]", c, fix)
+
+
+def _choice(field, value, allowed):
+    if value not in allowed:
+        raise InputError(field, value, "is not a known option", "use one of " + ", ".join(f'"{a}"' for a in allowed))
+
+
+def _unique_names(kind, items):
+    seen: dict[str, int] = {}
+    for i, item in enumerate(items):
+        if not isinstance(item.name, str) or not item.name.strip():
+            raise InputError(f"{kind}[{i}].name", item.name, "must be a non-empty string", 'give a name such as "A"')
+        if item.name in seen:
+            raise InputError(f"{kind}[{i}].name", item.name, f"is already used by {kind}[{seen[item.name]}]",
+                             f"give every {kind} its own name")
+        seen[item.name] = i
+
+
+# -- the validator -----------------------------------------------------------------------------------------------
+def validate_scenario(s: Scenario) -> Scenario:
+    """Check every value of ``s`` and its geometry; return ``s`` unchanged or raise :class:`InputError`.
+
+    Checks: diffusion > 0, degradation >= 0; at least one emitter and one receiver, unique names, finite
+    3-vectors; radii > 0; receiver kinds; ``sample_offset`` only for passive receivers and within
+    (0, symbol_interval]; channel settings (symbol_interval > 0, memory an integer in [0, 2000] or ``"auto"``,
+    memory_tolerance in (0, 1), background >= 0 with 1 or R entries, known counting/residual/response names,
+    particles > 0, 0 < time_step <= symbol_interval, seed >= 0); signalling (scheme, levels >= 2, peak > 0,
+    0 < budget <= peak * E, emitter index in range, explicit amplitudes >= 0, distinct, at most the peak);
+    geometry: no emitter inside or on a receiver, no two receivers overlapping or touching.
+    """
+    if not isinstance(s, Scenario):
+        raise InputError("scenario", type(s).__name__, "is not a Scenario", "build one with capacity.Scenario(...)")
+    if not isinstance(s.name, str) or not s.name.strip():
+        raise InputError("name", s.name, "must be a non-empty string", 'add a line such as name = "two receivers"')
+    _check_medium(s)
+    _check_emitters_receivers(s)
+    _check_channel(s)
+    _check_signalling(s)
+    _check_geometry(s)
+    return s
+
+
+def _check_medium(s: Scenario) -> None:
+    _positive("medium.diffusion", s.medium.diffusion,
+              'give a positive diffusion coefficient such as "79.4 um^2/s" or 7.94e-11 (m^2/s)')
+    _non_negative("medium.degradation", s.medium.degradation,
+                  'give a rate >= 0 such as "0.5 /s", or 0 for a stable molecule')
+
+
+def _check_emitters_receivers(s: Scenario) -> None:
+    for kind, items in (("emitter", s.emitters), ("receiver", s.receivers)):
+        if not isinstance(items, tuple) or len(items) == 0:
+            raise InputError(kind, items, f"needs at least one {kind}", f"add a [[{kind}]] table")
+        _unique_names(kind, items)
+    pos_fix = 'give [x, y, z] in metres or as strings such as ["10 um", "0 um", "0 um"]'
+    for i, e in enumerate(s.emitters):
+        _point(f"emitter[{i}].position", e.position, pos_fix)
+    ts = s.channel.symbol_interval
+    for j, r in enumerate(s.receivers):
+        f = f"receiver[{j}]"
+        _point(f"{f}.centre", r.centre, pos_fix)
+        _positive(f"{f}.radius", r.radius, 'give a positive radius such as "5 um" or 5e-6 (metres)')
+        _choice(f"{f}.kind", r.kind, RECEIVER_KINDS)
+        if r.sample_offset is None:
+            continue
+        if r.kind != "passive":
+            raise InputError(f"{f}.sample_offset", r.sample_offset,
+                             "is only used by passive receivers (an absorbing receiver counts all slot long)",
+                             'remove sample_offset, or set kind = "passive"')
+        _finite(f"{f}.sample_offset", r.sample_offset, 'give a time such as "50 ms"')
+        if isinstance(ts, numbers.Real) and not (0.0 < r.sample_offset <= ts):
+            raise InputError(f"{f}.sample_offset", r.sample_offset,
+                             f"must lie in (0, symbol_interval] = (0, {ts:g} s]",
+                             "give a time after the slot start and no later than its end, or leave it out "
+                             "to sample at the end of the slot")
+
+
+def _check_channel(s: Scenario) -> None:
+    c = s.channel
+    _positive("channel.symbol_interval", c.symbol_interval, 'give a positive time such as "100 ms" or 0.1 (s)')
+    mem_fix = f'give an integer number of lags from 0 to {MAX_MEMORY}, or "auto"'
+    if isinstance(c.memory, str):
+        if c.memory != "auto":
+            raise InputError("channel.memory", c.memory, 'is neither an integer nor "auto"', mem_fix)
+    elif not _is_int(c.memory) or c.memory < 0:
+        raise InputError("channel.memory", c.memory, "must be a non-negative integer", mem_fix)
+    elif c.memory > MAX_MEMORY:
+        raise InputError("channel.memory", c.memory, f"is above the cap of {MAX_MEMORY} lags", mem_fix +
+                         "; a longer symbol_interval needs fewer lags")
+    tol = _finite("channel.memory_tolerance", c.memory_tolerance, "give a fraction such as 0.01")
+    if not 0.0 < tol < 1.0:
+        raise InputError("channel.memory_tolerance", c.memory_tolerance, "must lie strictly between 0 and 1",
+                         "give a fraction such as 0.01")
+    n_rx = len(s.receivers)
+    bg = c.background
+    if not isinstance(bg, tuple) or len(bg) not in (0, 1, n_rx):
+        raise InputError("channel.background", bg, f"must have 1 or {n_rx} entries (one per receiver)",
+                         f"give one number for all receivers or a list of {n_rx}")
+    for j, b in enumerate(bg):
+        _non_negative(f"channel.background[{j}]", b, "give a mean count per slot >= 0, e.g. 0.5")
+    _choice("channel.counting", c.counting, COUNTING_LAWS)
+    _choice("channel.residual", c.residual, RESIDUAL_RULES)
+    _choice("channel.response", c.response, RESPONSE_MODELS)
+    if not _is_int(c.particles) or c.particles <= 0:
+        raise InputError("channel.particles", c.particles, "must be a positive integer",
+                         "give a number of molecules to simulate such as 20000")
+    if c.time_step is not None:
+        _positive("channel.time_step", c.time_step, 'give a time step such as "1 ms", or leave it out')
+        if c.time_step > c.symbol_interval:
+            raise InputError("channel.time_step", c.time_step,
+                             f"is longer than the symbol_interval ({c.symbol_interval:g} s)",
+                             "use a step well below the slot length, or leave it out for automatic")
+    if not _is_int(c.seed) or c.seed < 0:
+        raise InputError("channel.seed", c.seed, "must be a non-negative integer", "give a seed such as 0")
+
+
+def _check_signalling(s: Scenario) -> None:
+    g = s.signalling
+    _choice("signalling.scheme", g.scheme, SCHEMES)
+    if not _is_int(g.levels) or g.levels < 2:
+        raise InputError("signalling.levels", g.levels, "must be an integer >= 2 (levels include 0)",
+                         "give 2 for on-off keying, or more levels")
+    _positive("signalling.peak", g.peak, "give the largest release per emitter and slot, e.g. 1000 (molecules)")
+    n_em = len(s.emitters)
+    if g.budget is not None:
+        _positive("signalling.budget", g.budget, "give a mean number of molecules per symbol > 0, or leave it out")
+        most = float(g.peak) * n_em
+        if g.budget > most:
+            raise InputError("signalling.budget", g.budget,
+                             f"is larger than peak x number of emitters = {most:g} molecules, the most any "
+                             "symbol can release, so no alphabet can meet it (it would never bind)",
+                             f"give a budget of at most {most:g}, or leave it out for no mean constraint")
+    if not _is_int(g.emitter) or not 0 <= g.emitter < n_em:
+        raise InputError("signalling.emitter", g.emitter, f"must be an emitter index from 0 to {n_em - 1}",
+                         "give the index or the name of an emitter")
+    if not isinstance(g.silent, bool):
+        raise InputError("signalling.silent", g.silent, "must be true or false", "write silent = true")
+    if g.amplitudes is not None:
+        fix = "give at least two distinct release sizes >= 0, e.g. [0, 500, 1000]"
+        if not isinstance(g.amplitudes, tuple) or len(g.amplitudes) < 2:
+            raise InputError("signalling.amplitudes", g.amplitudes, "needs at least two levels", fix)
+        for k, a in enumerate(g.amplitudes):
+            _non_negative(f"signalling.amplitudes[{k}]", a, fix)
+        if len(set(float(a) for a in g.amplitudes)) != len(g.amplitudes):
+            raise InputError("signalling.amplitudes", g.amplitudes, "repeats a level", fix)
+        if max(g.amplitudes) > g.peak:
+            raise InputError("signalling.amplitudes", g.amplitudes,
+                             f"has a level above the peak ({g.peak:g} molecules)",
+                             "raise signalling.peak or lower the levels")
+
+
+def _check_geometry(s: Scenario) -> None:
+    em, rc, radii = s.emitter_positions, s.receiver_centres, s.receiver_radii
+    for i, e in enumerate(s.emitters):
+        for j, r in enumerate(s.receivers):
+            dist = float(np.linalg.norm(em[i] - rc[j]))
+            if dist <= radii[j]:
+                where = "on the surface of" if dist == radii[j] else f"{um(radii[j] - dist)} inside"
+                raise InputError(
+                    f"emitter[{i}].position", e.position,
+                    f'lies {where} receiver[{j}] "{r.name}" (centre distance {um(dist)}, radius {um(radii[j])})',
+                    f"move the emitter more than {um(radii[j] - dist)} further out, so that its distance from "
+                    f"the receiver centre exceeds {um(radii[j])}")
+    for a in range(len(s.receivers)):
+        for b in range(a + 1, len(s.receivers)):
+            dist = float(np.linalg.norm(rc[a] - rc[b]))
+            overlap = radii[a] + radii[b] - dist
+            if overlap >= 0.0:
+                how = "touches" if overlap == 0.0 else f"overlaps by {um(overlap)}"
+                raise InputError(
+                    f"receiver[{b}].centre", s.receivers[b].centre,
+                    f'receiver[{b}] "{s.receivers[b].name}" {how} receiver[{a}] "{s.receivers[a].name}" '
+                    f"(centre distance {um(dist)}, radii {um(radii[a])} + {um(radii[b])})",
+                    f"move the centres more than {um(overlap)} further apart, or shrink a radius")
+
+
+# -- warnings ----------------------------------------------------------------------------------------------------
+def geometry_warnings(s: Scenario) -> list[str]:
+    """Legal but suspicious choices in a valid scenario, as factual sentences (empty list if none).
+
+    Flags: an emitter closer to a receiver surface than 0.1 of its radius; two receivers closer than 0.1 of the
+    smaller radius; a hitting-rate peak (``hitting_peak_time``) more than 5 slots after release; a passive
+    receiver sampling in the first 1% of the slot; a particle time_step above 0.1 of the earliest peak time; and
+    particles x emitters x (memory + 1) above 5e7 molecule-slots.
+    """
+    out: list[str] = []
+    em, rc, radii = s.emitter_positions, s.receiver_centres, s.receiver_radii
+    dcoef, k, ts = s.medium.diffusion, s.medium.degradation, s.channel.symbol_interval
+    earliest = math.inf
+    for i, e in enumerate(s.emitters):
+        for j, r in enumerate(s.receivers):
+            dist = float(np.linalg.norm(em[i] - rc[j]))
+            gap = dist - radii[j]
+            if gap < _NEAR_SURFACE * radii[j]:
+                out.append(f'emitter "{e.name}" is {um(gap)} from the surface of receiver "{r.name}", less than '
+                           f"{_NEAR_SURFACE:g} of its radius ({um(radii[j])}); most of its signal arrives within "
+                           "a very short time")
+            basis = gap if r.kind == "absorbing" else dist
+            peak = float(hitting_peak_time(basis, dcoef, k))
+            earliest = min(earliest, peak)
+            if peak > _LATE_PEAK_SLOTS * ts:
+                out.append(f'the signal from emitter "{e.name}" at receiver "{r.name}" peaks {peak / ts:.3g} '
+                           f"slots after release (at {peak:.3g} s; symbol_interval {ts:.3g} s), so most of it "
+                           "arrives in later slots as interference")
+    for a in range(len(s.receivers)):
+        for b in range(a + 1, len(s.receivers)):
+            gap = float(np.linalg.norm(rc[a] - rc[b])) - radii[a] - radii[b]
+            small = min(radii[a], radii[b])
+            if gap < _NEAR_SURFACE * small:
+                out.append(f'receivers "{s.receivers[a].name}" and "{s.receivers[b].name}" are {um(gap)} apart, '
+                           f"less than {_NEAR_SURFACE:g} of the smaller radius ({um(small)})")
+    for r in s.receivers:
+        if r.kind == "passive" and r.sample_offset is not None and r.sample_offset < _EARLY_SAMPLE * ts:
+            out.append(f'passive receiver "{r.name}" samples {r.sample_offset:.3g} s into the slot, '
+                       f"{r.sample_offset / ts:.2%} of the symbol_interval")
+    c = s.channel
+    if c.time_step is not None and c.time_step > _COARSE_STEP * earliest:
+        out.append(f"the particle time_step ({c.time_step:.3g} s) is {c.time_step / earliest:.3g} of the earliest "
+                   f"peak time ({earliest:.3g} s); the step error of the particle model grows with this ratio")
+    if isinstance(c.memory, int):
+        work = float(c.particles) * len(s.emitters) * (c.memory + 1)
+        if work > _HEAVY_WORK:
+            out.append(f"particles x emitters x (memory + 1) = {work:.3g} molecule-slots for the particle model; "
+                       "expect a long run")
+    return out
