@@ -1,0 +1,95 @@
+"""Maximum a posteriori (maximum likelihood) sequence detection over the ISI trellis: the Viterbi algorithm.
+
+The channel is a finite-state machine whose state before slot k is the last L symbols (s_{k−L}, …, s_{k−1}),
+S^L states. A branch (state, s_k) has the mean counts μ = c + Σ_{l=0..L} Σ_i x_{s_{k−l}}[i] hits[i, :, l] and the
+metric ln π_{s_k} + Σ_j (y_kj ln μ_j − μ_j) (the Poisson log-likelihood without the ln y! term, which is the same
+for every path). The Viterbi recursion (Viterbi, IEEE Trans. IT 13(2), 1967; Forney, Proc. IEEE 61(3), 1973)
+
+    m_{k+1}(ns) = max_{p -> ns} [ m_k(p) + metric(p, s(ns), y_k) ],
+
+followed by a traceback, returns the sequence ŝ_0..ŝ_{n−1} that maximises Σ_k metric over all S^n sequences, given
+the known preamble (the start state) and leaving the final state free (the block is not terminated). With
+``prior=False`` the ln π term is 0 (maximum likelihood sequence detection); for equiprobable symbols the two agree.
+
+State encoding: state = Σ_{m=1..L} s_{k−m} S^(m−1) (the latest symbol is the least significant digit), so the
+successor of p under symbol s is (p·S + s) mod S^L and the predecessors of ns are ns // S + a·S^(L−1), a = 0..S−1.
+The forward pass and the traceback are ``jax.lax.scan`` loops (jit-compiled, static shapes). Memory: n·S^L
+survivor digits (int16).
+"""
+
+from __future__ import annotations
+
+import jax
+import jax.numpy as jnp
+import numpy as np
+
+from capacity.errors import InputError
+from capacity.schemes.detectors.problem import DetectionProblem, check_counts, lag_means
+from capacity.schemes.detectors.symbol_ml import symbol_ml
+
+MAX_STATES = 4096
+"""Largest trellis (S^L states) the detector accepts."""
+
+
+def trellis(problem: DetectionProblem) -> tuple[np.ndarray, np.ndarray, np.ndarray, int]:
+    """Trellis tables for L >= 1.
+
+    Returns (pred (N, S) int64: predecessor of state ns through oldest digit a; sym (N,) int64: the symbol that
+    leads into ns; means (N, S, R): branch mean counts for (ns, a); start: the preamble's state index), N = S^L.
+    """
+    n_s, big_l = problem.size, problem.memory
+    n_states = n_s ** big_l
+    if n_states > MAX_STATES:
+        raise InputError("detector", "viterbi",
+                         f"the trellis would have S^L = {n_s}^{big_l} = {n_states} states (more than {MAX_STATES})",
+                         "use decision_feedback, or shorten the memory (fewer lags) or the alphabet")
+    lm = lag_means(problem)  # (L+1, S, R)
+    states = np.arange(n_states, dtype=np.int64)
+    digits = np.stack([(states // n_s ** (m - 1)) % n_s for m in range(1, big_l + 1)], axis=1)  # (N, L)
+    past = problem.offset[None, :] + sum(lm[m][digits[:, m - 1]] for m in range(1, big_l + 1))  # (N, R)
+    branch = past[:, None, :] + lm[0][None, :, :]  # (p, s, R)
+    pred = (states // n_s)[:, None] + np.arange(n_s, dtype=np.int64)[None, :] * n_s ** (big_l - 1)  # (N, S)
+    sym = states % n_s
+    means = branch[pred, sym[:, None], :]  # (ns, a, R)
+    start = int(sum(int(problem.preamble[big_l - m]) * n_s ** (m - 1) for m in range(1, big_l + 1)))
+    return pred, sym, means, start
+
+
+@jax.jit
+def _viterbi_core(y, start_metric, pred, sym, means, log_prior):
+    """Forward scan + traceback. y (n, R); start_metric (N,); pred (N, S); sym (N,); means (N, S, R);
+    log_prior (S,). Returns decisions (n,) int64."""
+    cost = means.sum(-1) - log_prior[sym][:, None]  # (N, S)
+
+    def forward(metric, yk):
+        branch = jax.scipy.special.xlogy(yk[None, None, :], means).sum(-1) - cost  # (N, S)
+        cand = metric[pred] + branch
+        best = jnp.max(cand, axis=1)
+        top = jnp.max(best)
+        best = best - jnp.where(jnp.isfinite(top), top, 0.0)
+        return best, jnp.argmax(cand, axis=1).astype(jnp.int16)
+
+    final, back = jax.lax.scan(forward, start_metric, y)
+
+    def traceback(state, back_k):
+        prev = pred[state, back_k[state].astype(jnp.int64)]
+        return prev, sym[state]
+
+    _, decisions = jax.lax.scan(traceback, jnp.argmax(final).astype(jnp.int64), back, reverse=True)
+    return decisions
+
+
+def viterbi(counts: np.ndarray, problem: DetectionProblem) -> np.ndarray:
+    """Sequence decisions: counts (n, R) -> symbol indices (n,) maximising the joint posterior (or likelihood).
+
+    With no ISI (L = 0) the sequence detector is the symbol-by-symbol one (:func:`symbol_ml`), used directly.
+    """
+    y = check_counts(counts, problem)
+    if problem.memory == 0:
+        return symbol_ml(y, problem)
+    pred, sym, means, start = trellis(problem)
+    start_metric = np.full(pred.shape[0], -np.inf)
+    start_metric[start] = 0.0
+    out = _viterbi_core(jnp.asarray(y), jnp.asarray(start_metric), jnp.asarray(pred), jnp.asarray(sym),
+                        jnp.asarray(means), jnp.asarray(problem.log_prior))
+    return np.asarray(out, dtype=np.int64)
