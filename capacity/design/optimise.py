@@ -1,0 +1,309 @@
+"""Gradient design optimisation with optax: several seeded starts, constraints by reparametrisation, a polish.
+
+``optimise_design`` maximises one objective of :mod:`capacity.design.objectives` over the tunables of
+:mod:`capacity.design.params`:
+
+1. set-up: alphabet (``build_alphabet``), differentiable response model (``shadowed`` when every receiver absorbs
+   and the scenario asks for ``shadowed`` or ``particles``; ``lone`` otherwise), memory L (the scenario's, or the
+   smallest L whose later slots are below ``channel.memory_tolerance`` of the pair's peak at the given design);
+2. ``starts`` runs of Adam (Kingma & Ba, ICLR 2015) with a warm-up + cosine-decay learning-rate schedule and
+   global-norm clipping, on the unconstrained parameters; start 0 is the given design, the others are seeded random
+   perturbations of it (±0.7 in the unconstrained coordinates, i.e. about a factor 2 in log-scaled quantities).
+   A step that would make the geometry infeasible (emitter inside a receiver, receivers closer than the minimum
+   gap) is halved until feasible (up to 8 times, else skipped). A run stops early when, over the last
+   ``window`` steps, the objective changed by less than ``rtol`` relatively and the gradient norm times the
+   learning rate is below ``rtol`` of the objective;
+3. polish of the best design: the i.i.d. information rate with ISI by the forward recursion over the ISI trellis
+   (``information_rate``, with its standard error) and the single-letter bounds (``isi_bounds``: lower =
+   max(I_sbs, I_dfe), upper = I_mf), all in the objective's units, at the input law of the final evaluation.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from typing import Callable, NamedTuple
+
+import jax.numpy as jnp
+import numpy as np
+import optax
+
+from capacity.design.objectives import OBJECTIVES, RATES, Objective, Problem, objective_value, response
+from capacity.design.params import (
+    TUNABLES,
+    base_physical,
+    constrain,
+    describe,
+    feasible,
+    geometry,
+    layout,
+    make_space,
+    unconstrain,
+)
+from capacity.errors import InputError
+
+JITTER = 0.7
+MAX_MEMORY = 40
+MAX_PASTS = 256
+
+
+class DesignResult(NamedTuple):
+    """Outcome of :func:`optimise_design` (bits, seconds, molecules, metres).
+
+    best : tuned parameter -> SI value (see :mod:`capacity.design.params` for what each means).
+    objective : objective name.  value : objective at ``best`` with the optimised rate (``rate``).
+    lower_bound, upper_bound : bounds on the i.i.d. information rate with ISI at ``best`` (objective units):
+        max(I_sbs, I_dfe) and I_mf; NaN when the polish was skipped.
+    evaluations : objective evaluations (each a value, most with a gradient).
+    history : one dict per step: start, step, value, bits, molecules, grad_norm, the tuned values.
+    converged : whether the best start met the stopping rule.  message : readable summary.
+    scenario : the optimised Scenario.
+    rate : the differentiable rate used ("envelope" or "isi-as-noise").
+    polished : trellis information rate at ``best`` (objective units), NaN if skipped; polished_stderr its SE.
+    starts : one dict per start (value, best, converged, evaluations, seconds).
+    geometry : resulting receiver centres, radii, gaps, receiver distance (m).
+    law : (S,) input law at ``best``.  model : response model used.  notes : remarks.
+    """
+
+    best: dict
+    objective: str
+    value: float
+    lower_bound: float
+    upper_bound: float
+    evaluations: int
+    history: list
+    converged: bool
+    message: str
+    scenario: object
+    rate: str = "envelope"
+    polished: float = float("nan")
+    polished_stderr: float = float("nan")
+    starts: list = []
+    geometry: dict = {}
+    law: np.ndarray | None = None
+    model: str = ""
+    notes: tuple = ()
+
+
+def differentiable_model(scenario) -> str:
+    """"shadowed" if every receiver absorbs and the scenario does not ask for "lone", else "lone"."""
+    absorbing = all(r.kind == "absorbing" for r in scenario.receivers)
+    return "shadowed" if absorbing and scenario.channel.response != "lone" else "lone"
+
+
+def build_problem(scenario, tune, objective, *, rate="envelope", bounds=None, min_gap=None) -> Problem:
+    """The :class:`~capacity.design.objectives.Problem` of a scenario (alphabet, model, memory, budget)."""
+    from capacity.schemes.builders import build_alphabet
+
+    if objective not in OBJECTIVES:
+        raise InputError("objective", objective, "unknown objective", f"use one of {', '.join(OBJECTIVES)}")
+    if rate not in RATES:
+        raise InputError("rate", rate, "unknown rate", f"use one of {', '.join(RATES)}")
+    alphabet = build_alphabet(scenario.signalling, len(scenario.emitters))
+    symbols = np.asarray(alphabet.symbols, dtype=float)
+    space = make_space(scenario, symbols, tune, bounds=bounds, min_gap=min_gap)
+    model = differentiable_model(scenario)
+    problem = Problem(space, symbols, scenario.background, float(scenario.medium.diffusion),
+                      float(scenario.medium.degradation), model, 0, scenario.channel.residual, objective, rate,
+                      scenario.signalling.budget, 0)
+    memory = scenario.channel.memory
+    if not isinstance(memory, (int, np.integer)):
+        memory = auto_memory(problem, float(scenario.channel.memory_tolerance))
+    lags = 0
+    n_sym = symbols.shape[0]
+    while lags < memory and n_sym ** (lags + 1) <= MAX_PASTS:
+        lags += 1
+    return problem._replace(memory=int(memory), lags=lags if rate == "isi-as-noise" else 0)
+
+
+def auto_memory(problem: Problem, tolerance: float) -> int:
+    """Smallest L >= 1 such that every slot after L is at most ``tolerance`` of the pair's largest slot."""
+    lay = layout(problem.space, base_physical(problem.space), problem.base_symbols)
+    hits, _ = response(problem._replace(memory=MAX_MEMORY), lay)
+    h = np.asarray(hits)
+    peak = h.max(axis=-1, keepdims=True)
+    big = np.any(h > tolerance * peak, axis=(0, 1))
+    last = int(np.nonzero(big)[0].max()) if big.any() else 0
+    return max(1, min(last, MAX_MEMORY))
+
+
+def to_scenario(scenario, problem: Problem, phys: dict):
+    """The scenario with the design ``phys`` written in (symbol interval, receivers, amplitude levels).
+
+    A tuned ``split`` has no scenario field: it is kept in :attr:`DesignResult.best` only (see notes).
+    """
+    import dataclasses
+
+    lay = layout(problem.space, phys, problem.base_symbols)
+    ts = float(lay.symbol_interval)
+    receivers = []
+    for j, rec in enumerate(scenario.receivers):
+        offset = None if rec.sample_offset is None else float(problem.space.sample_fraction[j]) * ts
+        receivers.append(dataclasses.replace(rec, centre=tuple(float(v) for v in np.asarray(lay.centres)[j]),
+                                             radius=float(np.asarray(lay.radii)[j]), sample_offset=offset))
+    out = scenario.replace(receivers=tuple(receivers), name=scenario.name + " (optimised)")
+    out = out.with_channel(symbol_interval=ts)
+    if "levels" in phys:
+        levels = np.sort(np.concatenate([[0.0], np.asarray(phys["levels"], dtype=float)]))
+        out = out.with_signalling(amplitudes=tuple(float(v) for v in levels))
+    return out
+
+
+def _start_points(space, n_starts, seed):
+    u0 = unconstrain(space, base_physical(space))
+    rng = np.random.default_rng(seed)
+    points = [u0]
+    while len(points) < n_starts:
+        for _ in range(50):
+            u = {k: jnp.asarray(np.asarray(v) + JITTER * rng.standard_normal(np.shape(v))) for k, v in u0.items()}
+            if feasible(space, constrain(space, u)):
+                break
+        else:
+            u = u0
+        points.append(u)
+    return points
+
+
+def _norm(g: dict) -> float:
+    return float(math.sqrt(sum(float(np.sum(np.square(v))) for v in g.values())))
+
+
+def run_start(obj: Objective, u0: dict, *, steps, learning_rate, window=10, rtol=1e-5, start=0, bar=None):
+    """One Adam run from ``u0``; returns (best Evaluation, best u, history list, converged flag)."""
+    space = obj.problem.space
+    schedule = optax.warmup_cosine_decay_schedule(0.2 * learning_rate, learning_rate, max(1, steps // 20),
+                                                  max(2, steps), 0.05 * learning_rate)
+    opt = optax.chain(optax.clip_by_global_norm(10.0), optax.adam(schedule))
+    u = dict(u0)
+    state = opt.init(u)
+    best, best_u, history, values, converged = None, u, [], [], False
+    for step in range(steps):
+        ev = obj.evaluate(u, grad=True)
+        gnorm = _norm(ev.grad)
+        phys = constrain(space, u)
+        row = {"start": start, "step": step, "value": ev.value, "bits": ev.bits, "molecules": ev.molecules,
+               "grad_norm": gnorm}
+        row.update(describe(space, phys))
+        history.append(row)
+        values.append(ev.value)
+        if best is None or ev.value > best.value:
+            best, best_u = ev, u
+        if bar is not None:
+            bar.update(1)
+            bar.set_postfix(start=start, value=f"{ev.value:.5g}")
+        if len(values) > window:
+            recent = np.asarray(values[-window:])
+            scale = max(abs(recent[-1]), 1e-300)
+            if (recent.max() - recent.min()) / scale < rtol and gnorm * schedule(step) / scale < rtol:
+                converged = True
+                break
+        neg = {k: -jnp.asarray(v) for k, v in ev.grad.items()}
+        updates, state = opt.update(neg, state, u)
+        for _ in range(8):
+            trial = optax.apply_updates(u, updates)
+            if feasible(space, constrain(space, trial)):
+                u = trial
+                break
+            updates = {k: 0.5 * v for k, v in updates.items()}
+    return best, best_u, history, converged
+
+
+def polish(scenario, problem: Problem, phys: dict, law, *, n_symbols=20_000, n_runs=4, seed=0):
+    """Trellis information rate (value, stderr) and (lower, upper) bounds at a design, bits per symbol."""
+    from capacity.information.bounds import isi_bounds
+    from capacity.information.trellis import information_rate
+
+    lay = layout(problem.space, phys, problem.base_symbols)
+    hits, tail = response(problem, lay)
+    hits, tail = np.asarray(hits), np.asarray(tail)
+    symbols = np.asarray(lay.symbols)
+    law = np.asarray(law, dtype=float)
+    interference = (law @ symbols) @ tail if problem.residual == "interference" else np.zeros(hits.shape[1])
+    background = np.asarray(problem.background, dtype=float)
+    rate = information_rate(hits, background, symbols, law, interference=interference, n_symbols=n_symbols,
+                            n_runs=n_runs, seed=seed)
+    bounds = isi_bounds(hits, background, symbols, law, interference=interference, seed=seed + 1)
+    lower = max(bounds["sbs"].rate, bounds["dfe"].rate)
+    if "lower bound" in rate.method:
+        lower = max(lower, rate.rate)
+    return rate, float(lower), float(bounds["mf"].rate), float(law @ symbols.sum(axis=1))
+
+
+def optimise_design(scenario, tune, objective: str, *, rate: str = "envelope", starts: int = 4, steps: int = 200,
+                    learning_rate: float = 0.1, seed: int = 0, bounds: dict | None = None, progress: bool = True,
+                    min_gap: float | None = None, do_polish: bool = True, polish_symbols: int = 20_000,
+                    on_start: Callable | None = None) -> DesignResult:
+    """Maximise ``objective`` over the tunables ``tune`` of ``scenario`` (see the module docstring).
+
+    scenario : Scenario.  tune : names from :data:`capacity.design.params.TUNABLES`.
+    objective : "bits-per-second" | "bits-per-molecule" | "bits-per-symbol".  rate : "envelope" | "isi-as-noise".
+    starts : seeded starts (>= 1).  steps : Adam steps per start.  learning_rate : peak step in unconstrained units.
+    bounds : name -> (lo, hi) in the physical units of :mod:`capacity.design.params`.
+    min_gap : smallest receiver-emitter / receiver-receiver surface gap, m (default a tenth of the smallest radius).
+    do_polish : run the trellis rate and bounds at the best design.  on_start : called as
+    ``on_start(index, record)`` when each start finishes (the CLI saves it at once).
+    """
+    tune = tuple(tune)
+    for name, val in (("starts", starts), ("steps", steps)):
+        if isinstance(val, bool) or not isinstance(val, (int, np.integer)) or val < 1:
+            raise InputError(name, val, "must be a positive integer", f"give e.g. --{name} 4")
+    if not (isinstance(learning_rate, (int, float)) and learning_rate > 0):
+        raise InputError("learning_rate", learning_rate, "must be positive", "use e.g. 0.1")
+    problem = build_problem(scenario, tune, objective, rate=rate, bounds=bounds, min_gap=min_gap)
+    space = problem.space
+    obj = Objective(problem)
+    bar = None
+    if progress:
+        from tqdm.auto import tqdm
+
+        bar = tqdm(total=starts * steps, desc=f"optimise {objective}", unit="step", leave=False)
+    results, history = [], []
+    try:
+        for k, u0 in enumerate(_start_points(space, starts, seed)):
+            t0 = time.perf_counter()
+            n0 = obj.evaluations
+            best, best_u, hist, conv = run_start(obj, u0, steps=steps, learning_rate=learning_rate, start=k,
+                                                 bar=bar)
+            history.extend(hist)
+            record = {"start": k, "value": best.value, "bits": best.bits, "molecules": best.molecules,
+                      "best": describe(space, constrain(space, best_u)), "converged": conv,
+                      "evaluations": obj.evaluations - n0, "steps": len(hist),
+                      "seconds": time.perf_counter() - t0}
+            results.append((best, best_u, conv, record))
+            if on_start is not None:
+                on_start(k, record)
+    finally:
+        if bar is not None:
+            bar.close()
+    best, best_u, conv, _ = max(results, key=lambda r: r[0].value)
+    phys = constrain(space, best_u)
+    best_phys = {k: np.asarray(v) for k, v in phys.items()}
+    new_scenario = to_scenario(scenario, problem, best_phys)
+    notes = [f"response model: {problem.model}, memory {problem.memory} lags",
+             f"largest Poisson mass outside the output grid at the best design: {best.truncated:.1e}"]
+    if rate == "envelope":
+        notes.append(f"Blahut-Arimoto certified gap at the best design: {best.gap:.1e} bits")
+    else:
+        notes.append("isi-as-noise: uniform i.i.d. input over the alphabet (any budget ignored)")
+    if "split" in tune:
+        notes.append("the emitter split has no scenario field: it is reported in 'best' only")
+    polished = stderr = lower = upper = float("nan")
+    if do_polish:
+        ts = float(np.asarray(layout(space, best_phys, problem.base_symbols).symbol_interval))
+        rr, lo_b, up_b, mol = polish(scenario, problem, best_phys, best.law, n_symbols=polish_symbols,
+                                     seed=int(scenario.channel.seed) + seed)
+        polished = objective_value(objective, rr.rate, mol, ts)
+        stderr = objective_value(objective, rr.stderr, mol, ts)
+        lower = objective_value(objective, lo_b, mol, ts)
+        upper = objective_value(objective, up_b, mol, ts)
+        notes.append(f"polish: {rr.method}; {rr.message}")
+    n_conv = sum(r[2] for r in results)
+    message = (f"best of {starts} start(s): {objective} = {best.value:.6g} ({rate} rate); "
+               f"{n_conv}/{starts} start(s) met the stopping rule; {obj.evaluations} evaluations")
+    return DesignResult(describe(space, best_phys), objective, best.value, lower, upper, obj.evaluations,
+                        history, bool(conv), message, new_scenario, rate, polished, stderr,
+                        [r[3] for r in results], geometry(space, best_phys), best.law, problem.model,
+                        tuple(notes))
+
+
+__all__ = ["DesignResult", "optimise_design", "build_problem", "to_scenario", "TUNABLES"]
