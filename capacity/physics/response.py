@@ -1,0 +1,234 @@
+"""``channel_response``: choose a response model and the memory, and return a :class:`ChannelResponse`.
+
+Models (a small table, name -> function; each is imported only when used):
+
+* ``lone`` -- :func:`capacity.physics.lone.lone_hits`, every receiver as if alone (closed forms);
+* ``shadowed`` -- :func:`capacity.physics.shadowed.shadowed_hits` for the absorbing receivers (they take molecules
+  from each other), lone closed forms for the passive ones (a passive sphere does not perturb the field);
+* ``particles`` -- :func:`capacity.physics.particles.simulate_hits`, Brownian simulation of the whole layout.
+
+Memory ``"auto"``: the smallest L such that, for every emitter-receiver pair, every slot after L has a hit
+probability of at most ``memory_tolerance`` times the pair's largest slot. It is decided from the ``lone`` model
+(cheap) with up to :data:`MEMORY_CAP` lags, whichever model then computes the response; lone responses are
+unimodal in the lag, so no later slot rises above the threshold again.
+"""
+
+from __future__ import annotations
+
+import warnings
+from typing import NamedTuple
+
+import numpy as np
+
+from capacity.errors import InputError
+from capacity.physics.result import ChannelResponse
+
+#: largest memory "auto" may choose, in lags
+MEMORY_CAP = 2000
+#: largest number of particle time steps ((L+1) Ts / time_step) the particle model is asked to take
+PARTICLE_STEP_LIMIT = 1e6
+
+
+class Layout(NamedTuple):
+    """The scenario as arrays, SI units (built and validated by :func:`layout_arrays`)."""
+
+    emitters: np.ndarray  # (E, 3) m
+    centres: np.ndarray  # (R, 3) m
+    radii: np.ndarray  # (R,) m
+    passive: np.ndarray  # (R,) bool
+    offsets: np.ndarray  # (R,) s, passive sampling instant within the slot
+    diffusion: float  # m^2/s
+    degradation: float  # 1/s
+    symbol_interval: float  # s
+    emitter_names: tuple[str, ...]
+    receiver_names: tuple[str, ...]
+
+
+def _positive(field, value):
+    if not (np.isfinite(value) and value > 0):
+        raise InputError(field, value, "must be a finite positive number", "give a value > 0 in SI units")
+
+
+def layout_arrays(scenario) -> Layout:
+    """Validate what the response models need and return the layout as arrays (raises InputError)."""
+    if len(scenario.emitters) == 0:
+        raise InputError("emitters", (), "at least one emitter is needed", "add an emitter")
+    if len(scenario.receivers) == 0:
+        raise InputError("receivers", (), "at least one receiver is needed", "add a receiver")
+    medium, ch = scenario.medium, scenario.channel
+    _positive("medium.diffusion", medium.diffusion)
+    if not (np.isfinite(medium.degradation) and medium.degradation >= 0):
+        raise InputError("medium.degradation", medium.degradation, "must be finite and >= 0", "use 0 for none")
+    _positive("channel.symbol_interval", ch.symbol_interval)
+    ts = float(ch.symbol_interval)
+    emitters, centres, radii = scenario.emitter_positions, scenario.receiver_centres, scenario.receiver_radii
+    if not (np.all(np.isfinite(emitters)) and np.all(np.isfinite(centres))):
+        raise InputError("positions", "non-finite", "every position must be finite", "give coordinates in metres")
+    offsets = np.empty(len(scenario.receivers))
+    passive = np.empty(len(scenario.receivers), dtype=bool)
+    for j, rec in enumerate(scenario.receivers):
+        _positive(f"receiver[{j}].radius", rec.radius)
+        if rec.kind not in ("absorbing", "passive"):
+            raise InputError(f"receiver[{j}].kind", rec.kind, "unknown receiver kind", "use 'absorbing' or 'passive'")
+        passive[j] = rec.kind == "passive"
+        off = ts if rec.sample_offset is None else float(rec.sample_offset)
+        if not (0.0 < off <= ts):
+            raise InputError(f"receiver[{j}].sample_offset", rec.sample_offset, f"must lie in (0, Ts = {ts:g} s]",
+                             "give a sampling instant within the slot, or leave it out for the slot's end")
+        offsets[j] = off
+    gaps = np.linalg.norm(emitters[:, None, :] - centres[None, :, :], axis=-1) - radii[None, :]
+    bad = np.argwhere((gaps <= 0.0) & ~passive[None, :])
+    if bad.size:
+        i, j = bad[0]
+        raise InputError(f"emitter[{i}].position", emitters[i].tolist(),
+                         f"lies in or on absorbing receiver {j} (gap {gaps[i, j]:.3g} m)",
+                         "move the emitter outside the sphere")
+    return Layout(emitters, centres, radii, passive, offsets, float(medium.diffusion), float(medium.degradation),
+                  ts, tuple(e.name for e in scenario.emitters), tuple(r.name for r in scenario.receivers))
+
+
+def _lone_arrays(lay: Layout, memory: int):
+    from capacity.physics.lone import lone_hits
+
+    hits, tail = lone_hits(lay.emitters, lay.centres, lay.radii, lay.passive, lay.offsets, lay.diffusion,
+                           lay.degradation, lay.symbol_interval, memory=memory)
+    return np.asarray(hits, dtype=np.float64), np.asarray(tail, dtype=np.float64)
+
+
+def auto_memory(lay: Layout, tolerance: float) -> int:
+    """Smallest L such that every slot after L is <= tolerance x the pair's peak slot (lone model, <= MEMORY_CAP)."""
+    hits, _ = _lone_arrays(lay, MEMORY_CAP)
+    peak = hits.max(axis=-1, keepdims=True)
+    above = hits > tolerance * peak
+    lags = np.arange(hits.shape[-1])
+    last = np.where(above, lags, 0).max(axis=-1)  # (E, R) last lag above the threshold
+    if np.any(last >= MEMORY_CAP):
+        i, j = np.argwhere(last >= MEMORY_CAP)[0]
+        raise InputError("channel.memory", "auto",
+                         f"emitter {i} -> receiver {j} is still above {tolerance:g} x its peak after {MEMORY_CAP} lags",
+                         "lengthen channel.symbol_interval, raise channel.memory_tolerance, or give memory explicitly")
+    return int(last.max())
+
+
+# ------------------------------------------------------------------------------------------- the models
+def _lone(lay: Layout, memory: int, options: dict):
+    hits, tail = _lone_arrays(lay, memory)
+    return hits, tail, None, ["lone model: every receiver treated as if alone (no shadowing between receivers)"]
+
+
+def _shadowed(lay: Layout, memory: int, options: dict):
+    from capacity.physics.shadowed import shadowed_hits, validity_notes
+
+    hits, tail = _lone_arrays(lay, memory)
+    notes = []
+    absorbing = np.flatnonzero(~lay.passive)
+    if absorbing.size:
+        sh, st = shadowed_hits(lay.emitters, lay.centres[absorbing], lay.radii[absorbing], lay.diffusion,
+                               lay.degradation, lay.symbol_interval, memory)
+        hits[:, absorbing, :] = np.asarray(sh, dtype=np.float64)
+        tail[:, absorbing] = np.asarray(st, dtype=np.float64)
+        checks = list(validity_notes(lay.emitters, lay.centres[absorbing], lay.radii[absorbing], lay.diffusion,
+                                     lay.degradation))
+        if checks:
+            warnings.warn("shadowed model outside its validated range: " + "; ".join(checks), stacklevel=3)
+        notes += checks
+    if lay.passive.any() and absorbing.size:
+        notes.append("passive receivers use the lone closed form: their counts ignore absorption by the absorbing "
+                     "spheres")
+    return hits, tail, None, ["shadowed model: absorbing receivers take molecules from each other"] + notes
+
+
+def particle_step_count(lay: Layout, memory: int, time_step: float | None) -> float:
+    """Base time steps ((L+1) Ts / dt) of the particle model; dt automatic as documented in ``simulate_hits``."""
+    dt = time_step
+    if dt is None:
+        lengths = [np.inf]
+        ab = ~lay.passive
+        if ab.any():
+            c, r = lay.centres[ab], lay.radii[ab]
+            lengths.append(float(r.min()))
+            lengths.append(float((np.linalg.norm(lay.emitters[:, None] - c[None], axis=-1) - r[None]).min()))
+            if ab.sum() > 1:
+                sep = np.linalg.norm(c[:, None] - c[None], axis=-1) - r[:, None] - r[None]
+                np.fill_diagonal(sep, np.inf)
+                lengths.append(float(sep.min()))
+        ell = min(lengths)
+        dt = min(ell * ell / (100.0 * lay.diffusion), lay.symbol_interval / 200.0)
+    return (memory + 1) * lay.symbol_interval / dt
+
+
+def _particles(lay: Layout, memory: int, options: dict):
+    from capacity.physics.particles import simulate_hits
+
+    steps = particle_step_count(lay, memory, options["time_step"])
+    if steps > PARTICLE_STEP_LIMIT:
+        raise InputError("channel.memory", memory,
+                         f"the particle model would take {steps:.3g} time steps ((L+1) Ts / time_step), above "
+                         f"{PARTICLE_STEP_LIMIT:.0e}",
+                         "keep fewer lags (smaller memory or larger memory_tolerance), set a longer "
+                         "channel.time_step, or use the lone or shadowed model")
+    hits, tail, stderr = simulate_hits(lay.emitters, lay.centres, lay.radii, lay.passive, lay.offsets,
+                                       lay.diffusion, lay.degradation, lay.symbol_interval, memory,
+                                       particles=int(options["particles"]), seed=int(options["seed"]),
+                                       time_step=options["time_step"], progress=options["progress"])
+    hits, tail = np.array(hits, dtype=np.float64), np.array(tail, dtype=np.float64)
+    notes = [f"particles model: {int(options['particles'])} molecules per emitter, seed {int(options['seed'])}"]
+    if lay.passive.any():
+        _, lone_tail = _lone_arrays(lay, memory)
+        tail[:, lay.passive] = lone_tail[:, lay.passive]
+        notes.append("passive tails (samples after lag L) from the lone closed form")
+    return hits, tail, np.asarray(stderr, dtype=np.float64), notes
+
+
+MODELS = {"lone": _lone, "shadowed": _shadowed, "particles": _particles}
+
+
+def channel_response(scenario, model=None, *, memory=None, particles=None, seed=None, time_step=None,
+                     progress=False) -> ChannelResponse:
+    """Hit probabilities ``p[i, j, l]`` of a scenario with the chosen response model.
+
+    scenario : :class:`capacity.Scenario`. model : ``"lone"`` | ``"shadowed"`` | ``"particles"`` (default
+    ``scenario.channel.response``). memory : int L >= 0 or ``"auto"`` (default ``scenario.channel.memory``).
+    particles, seed, time_step (s) : particle-model settings overriding ``scenario.channel``. progress : show a
+    progress bar (particles).
+
+    Returns a :class:`ChannelResponse` with float64 numpy arrays: hits (E, R, L+1), tail (E, R), stderr
+    (E, R, L+1) for ``particles`` else None, slot_edges ``Ts * arange(L+2)`` (s), and notes (model remarks, the
+    memory, its tolerance and the largest tail mass). Raises :class:`InputError` for an unknown model, bad
+    memory, or a layout the model cannot take.
+    """
+    ch = scenario.channel
+    name = ch.response if model is None else model
+    if name not in MODELS:
+        raise InputError("channel.response", name, "unknown response model", f"use one of {sorted(MODELS)}")
+    lay = layout_arrays(scenario)
+    setting = ch.memory if memory is None else memory
+    notes = []
+    if isinstance(setting, str):
+        if setting != "auto":
+            raise InputError("channel.memory", setting, "must be a whole number of lags or 'auto'",
+                             "give e.g. memory = 10, or 'auto'")
+        tol = float(ch.memory_tolerance)
+        if not (0.0 < tol < 1.0):
+            raise InputError("channel.memory_tolerance", ch.memory_tolerance, "must lie in (0, 1)",
+                             "give e.g. 0.01")
+        lags = auto_memory(lay, tol)
+        notes.append(f"memory auto: L = {lags} lags (smallest with every later slot <= {tol:g} x the pair's "
+                     f"largest slot, decided from the lone model)")
+    else:
+        if isinstance(setting, bool) or int(setting) != setting or setting < 0:
+            raise InputError("channel.memory", setting, "must be a whole number >= 0 or 'auto'",
+                             "give e.g. memory = 10")
+        lags = int(setting)
+        notes.append(f"memory: L = {lags} lags (given)")
+    options = {"particles": ch.particles if particles is None else particles,
+               "seed": ch.seed if seed is None else seed,
+               "time_step": ch.time_step if time_step is None else time_step,
+               "progress": progress}
+    hits, tail, stderr, model_notes = MODELS[name](lay, lags, options)
+    i, j = np.unravel_index(int(np.argmax(tail)), tail.shape)
+    notes.append(f"largest tail mass beyond lag {lags}: {tail[i, j]:.3g} ({lay.emitter_names[i]} -> "
+                 f"{lay.receiver_names[j]})")
+    return ChannelResponse(hits=hits, tail=tail, stderr=stderr, model=name,
+                           slot_edges=lay.symbol_interval * np.arange(lags + 2, dtype=np.float64),
+                           notes=tuple(model_notes + notes))
