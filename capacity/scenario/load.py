@@ -47,8 +47,18 @@ _TOP = ("name", "medium", "emitter", "receiver", "channel", "signalling")
 _MEDIUM = ("diffusion", "degradation")
 _EMITTER = ("name", "position")
 _RECEIVER = ("name", "centre", "radius", "kind", "sample_offset")
-_CHANNEL = ("symbol_interval", "memory", "memory_tolerance", "background", "counting", "residual", "response",
-            "particles", "time_step", "seed")
+_CHANNEL = (
+    "symbol_interval",
+    "memory",
+    "memory_tolerance",
+    "background",
+    "counting",
+    "residual",
+    "response",
+    "particles",
+    "time_step",
+    "seed",
+)
 _SIGNALLING = ("scheme", "levels", "peak", "budget", "emitter", "silent", "amplitudes")
 
 
@@ -62,16 +72,25 @@ def load_scenario(path: str | PathLike) -> Scenario:
         with open(path, "rb") as fh:
             raw = fh.read()
     except OSError as err:
-        raise InputError("scenario file", str(path), f"cannot be read ({err.strerror or type(err).__name__})",
-                         "check the path and that the file is readable") from None
+        raise InputError(
+            "scenario file",
+            str(path),
+            f"cannot be read ({err.strerror or type(err).__name__})",
+            "check the path and that the file is readable",
+        ) from None
     try:
         data = tomllib.loads(raw.decode("utf-8"))
     except UnicodeDecodeError as err:
-        raise InputError("scenario file", str(path), f"is not UTF-8 text (byte {err.start})",
-                         "save the file as UTF-8 TOML") from None
+        raise InputError(
+            "scenario file", str(path), f"is not UTF-8 text (byte {err.start})", "save the file as UTF-8 TOML"
+        ) from None
     except tomllib.TOMLDecodeError as err:
-        raise InputError("scenario file", str(path), f"is not valid TOML: {err}",
-                         "fix the syntax at that line and column (strings need quotes, tables [name])") from None
+        raise InputError(
+            "scenario file",
+            str(path),
+            f"is not valid TOML: {err}",
+            "fix the syntax at that line and column (strings need quotes, tables [name])",
+        ) from None
     return scenario_from_dict(data, source=str(path))
 
 
@@ -82,8 +101,12 @@ def scenario_from_dict(data: dict, source: str = "<dict>") -> Scenario:
     for the keys.
     """
     if not isinstance(data, dict):
-        raise InputError(source, type(data).__name__, "must be a table of scenario keys",
-                         "give a dictionary with name, medium, emitter, receiver and channel")
+        raise InputError(
+            source,
+            type(data).__name__,
+            "must be a table of scenario keys",
+            "give a dictionary with name, medium, emitter, receiver and channel",
+        )
     _known(data, _TOP, "the top level of " + source, "")
     if "name" not in data:
         raise InputError("name", None, f"is missing from {source}", 'add a line such as name = "two receivers"')
@@ -95,30 +118,46 @@ def scenario_from_dict(data: dict, source: str = "<dict>") -> Scenario:
     receivers = tuple(_receiver(t, j) for j, t in enumerate(_array(data, "receiver")))
     channel = _channel(_table(data, "channel", required=True), len(receivers))
     signalling = _signalling(_table(data, "signalling", required=False), emitters)
-    scenario = Scenario(name=data["name"], medium=medium, emitters=emitters, receivers=receivers,
-                        channel=channel, signalling=signalling)
+    scenario = Scenario(
+        name=data["name"],
+        medium=medium,
+        emitters=emitters,
+        receivers=receivers,
+        channel=channel,
+        signalling=signalling,
+    )
     return validate_scenario(scenario)
 
 
 # -- structure helpers -------------------------------------------------------------------------------------------
+def _nearest(word, options, cutoff: float = 0.6) -> str | None:
+    """The option closest to ``word`` (difflib ratio, ignoring case), or None if none is close enough."""
+    lowered = {str(o).lower(): o for o in options}
+    close = difflib.get_close_matches(str(word).lower(), list(lowered), n=1, cutoff=cutoff)
+    return lowered[close[0]] if close else None
+
+
 def _suggest(word: str, options) -> str:
-    close = difflib.get_close_matches(word, list(options), n=1, cutoff=0.6)
+    close = _nearest(word, options)
     listing = ", ".join(f'"{o}"' for o in options)
-    if close:
-        return f'did you mean "{close[0]}"? (valid: {listing})'
+    if close is not None:
+        return f'did you mean "{close}"? (valid: {listing})'
     return f"valid keys: {listing}"
 
 
 def _known(table: dict, allowed, where: str, prefix: str) -> None:
     for key in table:
         if key not in allowed:
-            raise InputError(prefix + str(key), table[key], f'unknown key "{key}" in {where}', _suggest(key, allowed))
+            raise InputError(
+                prefix + str(key), table[key], f'unknown key "{key}" in {where}', _suggest(key, allowed)
+            )
 
 
 def _require(table: dict, key: str, prefix: str, fix: str):
     if key not in table:
-        raise InputError(prefix + key, None, f"is missing (required key of {prefix.rstrip('.') or 'the file'})",
-                         fix)
+        raise InputError(
+            prefix + key, None, f"is missing (required key of {prefix.rstrip('.') or 'the file'})", fix
+        )
     return table[key]
 
 
@@ -138,8 +177,12 @@ def _array(data: dict, key: str) -> list:
         raise InputError(key, None, f"no [[{key}]] table is given", f"add at least one [[{key}]] table")
     value = data[key]
     if isinstance(value, dict):
-        raise InputError(key, "{...}", "is a single table, but a list of tables is expected",
-                         f"write [[{key}]] (double brackets) above each {key}")
+        raise InputError(
+            key,
+            "{...}",
+            "is a single table, but a list of tables is expected",
+            f"write [[{key}]] (double brackets) above each {key}",
+        )
     if not isinstance(value, list) or len(value) == 0 or not all(isinstance(t, dict) for t in value):
         raise InputError(key, value, "must be a non-empty list of tables", f"write one [[{key}]] table per {key}")
     return value
@@ -164,8 +207,8 @@ def _enum(table: dict, key: str, prefix: str, allowed, default: str) -> str:
     value = table.get(key, default)
     if not isinstance(value, str) or value not in allowed:
         listing = ", ".join(f'"{a}"' for a in allowed)
-        close = difflib.get_close_matches(str(value), list(allowed), n=1, cutoff=0.5)
-        fix = f'did you mean "{close[0]}"? (valid: {listing})' if close else f"use one of {listing}"
+        close = _nearest(value, allowed, cutoff=0.5)
+        fix = f'did you mean "{close}"? (valid: {listing})' if close else f"use one of {listing}"
         raise InputError(prefix + key, value, "is not a known option", fix)
     return value
 
@@ -212,13 +255,18 @@ def _receiver(t: dict, j: int) -> Receiver:
 def _channel(t: dict, n_rx: int) -> Channel:
     p = "channel."
     _known(t, _CHANNEL, "[channel]", p)
-    ts = to_si(_require(t, "symbol_interval", p, 'give a slot length such as "100 ms"'), "time",
-               p + "symbol_interval")
+    ts = to_si(
+        _require(t, "symbol_interval", p, 'give a slot length such as "100 ms"'), "time", p + "symbol_interval"
+    )
     memory = t.get("memory", "auto")
     if isinstance(memory, str):
         if memory != "auto":
-            raise InputError(p + "memory", memory, 'is neither an integer nor "auto"',
-                             'give a number of lags such as 20, or "auto"')
+            raise InputError(
+                p + "memory",
+                memory,
+                'is neither an integer nor "auto"',
+                'give a number of lags such as 20, or "auto"',
+            )
     else:
         memory = _integer(memory, p + "memory", 'give a number of lags such as 20, or "auto"')
     tolerance = t.get("memory_tolerance", 0.01)
@@ -227,9 +275,12 @@ def _channel(t: dict, n_rx: int) -> Channel:
     background = t.get("background", 0.0)
     if isinstance(background, list):
         if len(background) != n_rx:
-            raise InputError(p + "background", background,
-                             f"has {len(background)} entries but there are {n_rx} receivers",
-                             f"give one number for all receivers or a list of {n_rx}")
+            raise InputError(
+                p + "background",
+                background,
+                f"has {len(background)} entries but there are {n_rx} receivers",
+                f"give one number for all receivers or a list of {n_rx}",
+            )
         background = tuple(to_si(b, "count", f"{p}background[{k}]") for k, b in enumerate(background))
     else:
         background = (to_si(background, "count", p + "background"),) * n_rx
@@ -258,15 +309,23 @@ def _signalling(t: dict, emitters: tuple[Emitter, ...]) -> Signalling:
     amplitudes = t.get("amplitudes")
     if amplitudes is not None:
         if not isinstance(amplitudes, list):
-            raise InputError(p + "amplitudes", amplitudes, "must be a list of molecule counts",
-                             "write e.g. amplitudes = [0, 500, 1000]")
+            raise InputError(
+                p + "amplitudes",
+                amplitudes,
+                "must be a list of molecule counts",
+                "write e.g. amplitudes = [0, 500, 1000]",
+            )
         amplitudes = tuple(to_si(a, "count", f"{p}amplitudes[{k}]") for k, a in enumerate(amplitudes))
     levels_fix = "give 2 for on-off keying, or more levels"
     if "levels" in t:
         levels = _integer(t["levels"], p + "levels", levels_fix)
         if amplitudes is not None and levels != len(amplitudes):
-            raise InputError(p + "levels", t["levels"], f"disagrees with the {len(amplitudes)} amplitudes given",
-                             "leave levels out when amplitudes are given, or make them agree")
+            raise InputError(
+                p + "levels",
+                t["levels"],
+                f"disagrees with the {len(amplitudes)} amplitudes given",
+                "leave levels out when amplitudes are given, or make them agree",
+            )
     else:
         levels = len(amplitudes) if amplitudes is not None else defaults.levels
     if "peak" in t:
@@ -279,14 +338,25 @@ def _signalling(t: dict, emitters: tuple[Emitter, ...]) -> Signalling:
     emitter = defaults.emitter
     if "emitter" in t:
         if scheme != "amplitude":
-            raise InputError(p + "emitter", t["emitter"], f'is only used by the "amplitude" scheme, not "{scheme}"',
-                             "remove it, or set scheme = \"amplitude\"")
+            raise InputError(
+                p + "emitter",
+                t["emitter"],
+                f'is only used by the "amplitude" scheme, not "{scheme}"',
+                'remove it, or set scheme = "amplitude"',
+            )
         emitter = _emitter_index(t["emitter"], emitters)
     silent = t.get("silent", defaults.silent)
     if not isinstance(silent, bool):
         raise InputError(p + "silent", silent, "must be true or false", "write silent = true (no quotes)")
-    return Signalling(scheme=scheme, levels=levels, peak=peak, budget=budget, emitter=emitter, silent=silent,
-                      amplitudes=amplitudes)
+    return Signalling(
+        scheme=scheme,
+        levels=levels,
+        peak=peak,
+        budget=budget,
+        emitter=emitter,
+        silent=silent,
+        amplitudes=amplitudes,
+    )
 
 
 def _emitter_index(value, emitters: tuple[Emitter, ...]) -> int:
@@ -294,12 +364,16 @@ def _emitter_index(value, emitters: tuple[Emitter, ...]) -> int:
     if isinstance(value, str):
         if value in names:
             return names.index(value)
-        close = difflib.get_close_matches(value, names, n=1, cutoff=0.6)
+        close = _nearest(value, names)
         listing = ", ".join(f'"{n}"' for n in names)
-        fix = f'did you mean "{close[0]}"? (emitters: {listing})' if close else f"use one of {listing}"
+        fix = f'did you mean "{close}"? (emitters: {listing})' if close else f"use one of {listing}"
         raise InputError("signalling.emitter", value, "is not the name of an emitter", fix)
     index = _integer(value, "signalling.emitter", "give the index or the name of an emitter")
     if not 0 <= index < len(emitters):
-        raise InputError("signalling.emitter", value, f"is not an emitter index (0 to {len(emitters) - 1})",
-                         "give the index or the name of an emitter")
+        raise InputError(
+            "signalling.emitter",
+            value,
+            f"is not an emitter index (0 to {len(emitters) - 1})",
+            "give the index or the name of an emitter",
+        )
     return index

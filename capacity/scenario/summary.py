@@ -41,12 +41,16 @@ def passive_fraction(t, distance: float, radius: float, diffusion: float, degrad
     t = np.asarray(t, dtype=float)
     s = np.sqrt(4.0 * diffusion * t)
     lo, hi = (distance - radius) / s, (distance + radius) / s
-    p = 0.5 * (erfc(lo) - erfc(hi)) - np.sqrt(diffusion * t / math.pi) / distance * (np.exp(-lo**2) - np.exp(-hi**2))
+    p = 0.5 * (erfc(lo) - erfc(hi)) - np.sqrt(diffusion * t / math.pi) / distance * (
+        np.exp(-(lo**2)) - np.exp(-(hi**2))
+    )
     return p * np.exp(-degradation * t)
 
 
-def passive_peak(distance: float, radius: float, diffusion: float, degradation: float = 0.0) -> tuple[float, float]:
-    """Time (s) and value of the peak of :func:`passive_fraction`, by a log-spaced scan refined with Brent's method.
+def passive_peak(
+    distance: float, radius: float, diffusion: float, degradation: float = 0.0
+) -> tuple[float, float]:
+    """Time (s) and value of the peak of :func:`passive_fraction`: a log-spaced scan refined by Brent's method.
 
     The scan covers 1e-4 to 1e2 times ``rho^2/(6D)`` (the peak of the concentration at the centre); the result is
     refined to a relative width of about 1e-10 in ``ln t``.
@@ -56,8 +60,12 @@ def passive_peak(distance: float, radius: float, diffusion: float, degradation: 
     values = passive_fraction(np.exp(logs), distance, radius, diffusion, degradation)
     best = int(np.argmax(values))
     lo, hi = logs[max(best - 1, 0)], logs[min(best + 1, len(logs) - 1)]
-    res = minimize_scalar(lambda u: -float(passive_fraction(math.exp(u), distance, radius, diffusion, degradation)),
-                          bounds=(lo, hi), method="bounded", options={"xatol": 1e-10})
+    res = minimize_scalar(
+        lambda u: -float(passive_fraction(math.exp(u), distance, radius, diffusion, degradation)),
+        bounds=(lo, hi),
+        method="bounded",
+        options={"xatol": 1e-10},
+    )
     return math.exp(res.x), -float(res.fun)
 
 
@@ -85,16 +93,31 @@ def summarise(s: Scenario) -> dict:
             else:
                 capture = None
                 peak, fraction = passive_peak(dist, float(radii[j]), dcoef, k)
-            pairs.append({
-                "emitter": e.name, "receiver": r.name, "kind": r.kind, "centre_distance": dist, "gap": gap,
-                "lone_capture": capture, "peak_fraction": fraction, "peak_time": peak, "peak_time_slots": peak / ts,
-            })
+            pairs.append(
+                {
+                    "emitter": e.name,
+                    "receiver": r.name,
+                    "kind": r.kind,
+                    "centre_distance": dist,
+                    "gap": gap,
+                    "lone_capture": capture,
+                    "peak_fraction": fraction,
+                    "peak_time": peak,
+                    "peak_time_slots": peak / ts,
+                }
+            )
     gaps = []
     for a in range(len(s.receivers)):
         for b in range(a + 1, len(s.receivers)):
             dist = float(np.linalg.norm(rc[a] - rc[b]))
-            gaps.append({"a": s.receivers[a].name, "b": s.receivers[b].name, "centre_distance": dist,
-                         "gap": dist - float(radii[a]) - float(radii[b])})
+            gaps.append(
+                {
+                    "a": s.receivers[a].name,
+                    "b": s.receivers[b].name,
+                    "centre_distance": dist,
+                    "gap": dist - float(radii[a]) - float(radii[b]),
+                }
+            )
     return {
         "name": s.name,
         "units": {"length": "m", "time": "s", "diffusion": "m^2/s", "rate": "1/s", "capture": "fraction"},
@@ -111,7 +134,11 @@ def summarise(s: Scenario) -> dict:
 
 def _table(header: list[str], rows: list[list[str]]) -> list[str]:
     widths = [max(len(h), *(len(r[c]) for r in rows)) for c, h in enumerate(header)]
-    line = lambda cells: "  ".join(x.rjust(w) if c else x.ljust(w) for c, (x, w) in enumerate(zip(cells, widths)))  # noqa: E731
+
+    def line(cells: list[str]) -> str:
+        padded = (x.rjust(w) if c else x.ljust(w) for c, (x, w) in enumerate(zip(cells, widths, strict=True)))
+        return "  ".join(padded)
+
     return [line(header), line(["-" * w for w in widths])] + [line(r) for r in rows]
 
 
@@ -127,15 +154,28 @@ def format_summary(d: dict) -> str:
         f"degradation = {d['degradation']:.4g} 1/s, symbol interval = {d['symbol_interval'] * 1e3:.4g} ms",
         "",
     ]
-    rows = [[p["emitter"] + " -> " + p["receiver"], p["kind"], _num(p["centre_distance"], 1e6),
-             _num(p["gap"], 1e6), _num(p["lone_capture"]), _num(p["peak_fraction"]), _num(p["peak_time"], 1e3),
-             _num(p["peak_time_slots"], fmt=".3g")] for p in d["pairs"]]
-    out += _table(["pair", "kind", "distance µm", "gap µm", "lone capture", "peak fraction", "peak ms",
-                   "peak slots"], rows)
+    rows = [
+        [
+            p["emitter"] + " -> " + p["receiver"],
+            p["kind"],
+            _num(p["centre_distance"], 1e6),
+            _num(p["gap"], 1e6),
+            _num(p["lone_capture"]),
+            _num(p["peak_fraction"]),
+            _num(p["peak_time"], 1e3),
+            _num(p["peak_time_slots"], fmt=".3g"),
+        ]
+        for p in d["pairs"]
+    ]
+    out += _table(
+        ["pair", "kind", "distance µm", "gap µm", "lone capture", "peak fraction", "peak ms", "peak slots"], rows
+    )
     if d["receiver_gaps"]:
         out.append("")
-        rows = [[g["a"] + " - " + g["b"], _num(g["centre_distance"], 1e6), _num(g["gap"], 1e6)]
-                for g in d["receiver_gaps"]]
+        rows = [
+            [g["a"] + " - " + g["b"], _num(g["centre_distance"], 1e6), _num(g["gap"], 1e6)]
+            for g in d["receiver_gaps"]
+        ]
         out += _table(["receivers", "distance µm", "gap µm"], rows)
     out.append("")
     if d["warnings"]:

@@ -98,17 +98,25 @@ def _point(field, value, fix):
 
 def _choice(field, value, allowed):
     if value not in allowed:
-        raise InputError(field, value, "is not a known option", "use one of " + ", ".join(f'"{a}"' for a in allowed))
+        raise InputError(
+            field, value, "is not a known option", "use one of " + ", ".join(f'"{a}"' for a in allowed)
+        )
 
 
 def _unique_names(kind, items):
     seen: dict[str, int] = {}
     for i, item in enumerate(items):
         if not isinstance(item.name, str) or not item.name.strip():
-            raise InputError(f"{kind}[{i}].name", item.name, "must be a non-empty string", 'give a name such as "A"')
+            raise InputError(
+                f"{kind}[{i}].name", item.name, "must be a non-empty string", 'give a name such as "A"'
+            )
         if item.name in seen:
-            raise InputError(f"{kind}[{i}].name", item.name, f"is already used by {kind}[{seen[item.name]}]",
-                             f"give every {kind} its own name")
+            raise InputError(
+                f"{kind}[{i}].name",
+                item.name,
+                f"is already used by {kind}[{seen[item.name]}]",
+                f"give every {kind} its own name",
+            )
         seen[item.name] = i
 
 
@@ -125,7 +133,9 @@ def validate_scenario(s: Scenario) -> Scenario:
     geometry: no emitter inside or on a receiver, no two receivers overlapping or touching.
     """
     if not isinstance(s, Scenario):
-        raise InputError("scenario", type(s).__name__, "is not a Scenario", "build one with capacity.Scenario(...)")
+        raise InputError(
+            "scenario", type(s).__name__, "is not a Scenario", "build one with capacity.Scenario(...)"
+        )
     if not isinstance(s.name, str) or not s.name.strip():
         raise InputError("name", s.name, "must be a non-empty string", 'add a line such as name = "two receivers"')
     _check_medium(s)
@@ -137,10 +147,14 @@ def validate_scenario(s: Scenario) -> Scenario:
 
 
 def _check_medium(s: Scenario) -> None:
-    _positive("medium.diffusion", s.medium.diffusion,
-              'give a positive diffusion coefficient such as "79.4 um^2/s" or 7.94e-11 (m^2/s)')
-    _non_negative("medium.degradation", s.medium.degradation,
-                  'give a rate >= 0 such as "0.5 /s", or 0 for a stable molecule')
+    _positive(
+        "medium.diffusion",
+        s.medium.diffusion,
+        'give a positive diffusion coefficient such as "79.4 um^2/s" or 7.94e-11 (m^2/s)',
+    )
+    _non_negative(
+        "medium.degradation", s.medium.degradation, 'give a rate >= 0 such as "0.5 /s", or 0 for a stable molecule'
+    )
 
 
 def _check_emitters_receivers(s: Scenario) -> None:
@@ -160,15 +174,21 @@ def _check_emitters_receivers(s: Scenario) -> None:
         if r.sample_offset is None:
             continue
         if r.kind != "passive":
-            raise InputError(f"{f}.sample_offset", r.sample_offset,
-                             "is only used by passive receivers (an absorbing receiver counts all slot long)",
-                             'remove sample_offset, or set kind = "passive"')
+            raise InputError(
+                f"{f}.sample_offset",
+                r.sample_offset,
+                "is only used by passive receivers (an absorbing receiver counts all slot long)",
+                'remove sample_offset, or set kind = "passive"',
+            )
         _finite(f"{f}.sample_offset", r.sample_offset, 'give a time such as "50 ms"')
         if isinstance(ts, numbers.Real) and not (0.0 < r.sample_offset <= ts):
-            raise InputError(f"{f}.sample_offset", r.sample_offset,
-                             f"must lie in (0, symbol_interval] = (0, {ts:g} s]",
-                             "give a time after the slot start and no later than its end, or leave it out "
-                             "to sample at the end of the slot")
+            raise InputError(
+                f"{f}.sample_offset",
+                r.sample_offset,
+                f"must lie in (0, symbol_interval] = (0, {ts:g} s]",
+                "give a time after the slot start and no later than its end, or leave it out "
+                "to sample at the end of the slot",
+            )
 
 
 def _check_channel(s: Scenario) -> None:
@@ -181,31 +201,50 @@ def _check_channel(s: Scenario) -> None:
     elif not _is_int(c.memory) or c.memory < 0:
         raise InputError("channel.memory", c.memory, "must be a non-negative integer", mem_fix)
     elif c.memory > MAX_MEMORY:
-        raise InputError("channel.memory", c.memory, f"is above the cap of {MAX_MEMORY} lags", mem_fix +
-                         "; a longer symbol_interval needs fewer lags")
+        raise InputError(
+            "channel.memory",
+            c.memory,
+            f"is above the cap of {MAX_MEMORY} lags",
+            mem_fix + "; a longer symbol_interval needs fewer lags",
+        )
     tol = _finite("channel.memory_tolerance", c.memory_tolerance, "give a fraction such as 0.01")
     if not 0.0 < tol < 1.0:
-        raise InputError("channel.memory_tolerance", c.memory_tolerance, "must lie strictly between 0 and 1",
-                         "give a fraction such as 0.01")
+        raise InputError(
+            "channel.memory_tolerance",
+            c.memory_tolerance,
+            "must lie strictly between 0 and 1",
+            "give a fraction such as 0.01",
+        )
     n_rx = len(s.receivers)
     bg = c.background
     if not isinstance(bg, tuple) or len(bg) not in (0, 1, n_rx):
-        raise InputError("channel.background", bg, f"must have 1 or {n_rx} entries (one per receiver)",
-                         f"give one number for all receivers or a list of {n_rx}")
+        raise InputError(
+            "channel.background",
+            bg,
+            f"must have 1 or {n_rx} entries (one per receiver)",
+            f"give one number for all receivers or a list of {n_rx}",
+        )
     for j, b in enumerate(bg):
         _non_negative(f"channel.background[{j}]", b, "give a mean count per slot >= 0, e.g. 0.5")
     _choice("channel.counting", c.counting, COUNTING_LAWS)
     _choice("channel.residual", c.residual, RESIDUAL_RULES)
     _choice("channel.response", c.response, RESPONSE_MODELS)
     if not _is_int(c.particles) or c.particles <= 0:
-        raise InputError("channel.particles", c.particles, "must be a positive integer",
-                         "give a number of molecules to simulate such as 20000")
+        raise InputError(
+            "channel.particles",
+            c.particles,
+            "must be a positive integer",
+            "give a number of molecules to simulate such as 20000",
+        )
     if c.time_step is not None:
         _positive("channel.time_step", c.time_step, 'give a time step such as "1 ms", or leave it out')
         if c.time_step > c.symbol_interval:
-            raise InputError("channel.time_step", c.time_step,
-                             f"is longer than the symbol_interval ({c.symbol_interval:g} s)",
-                             "use a step well below the slot length, or leave it out for automatic")
+            raise InputError(
+                "channel.time_step",
+                c.time_step,
+                f"is longer than the symbol_interval ({c.symbol_interval:g} s)",
+                "use a step well below the slot length, or leave it out for automatic",
+            )
     if not _is_int(c.seed) or c.seed < 0:
         raise InputError("channel.seed", c.seed, "must be a non-negative integer", "give a seed such as 0")
 
@@ -214,21 +253,32 @@ def _check_signalling(s: Scenario) -> None:
     g = s.signalling
     _choice("signalling.scheme", g.scheme, SCHEMES)
     if not _is_int(g.levels) or g.levels < 2:
-        raise InputError("signalling.levels", g.levels, "must be an integer >= 2 (levels include 0)",
-                         "give 2 for on-off keying, or more levels")
+        raise InputError(
+            "signalling.levels",
+            g.levels,
+            "must be an integer >= 2 (levels include 0)",
+            "give 2 for on-off keying, or more levels",
+        )
     _positive("signalling.peak", g.peak, "give the largest release per emitter and slot, e.g. 1000 (molecules)")
     n_em = len(s.emitters)
     if g.budget is not None:
         _positive("signalling.budget", g.budget, "give a mean number of molecules per symbol > 0, or leave it out")
         most = float(g.peak) * n_em
         if g.budget > most:
-            raise InputError("signalling.budget", g.budget,
-                             f"is larger than peak x number of emitters = {most:g} molecules, the most any "
-                             "symbol can release, so no alphabet can meet it (it would never bind)",
-                             f"give a budget of at most {most:g}, or leave it out for no mean constraint")
+            raise InputError(
+                "signalling.budget",
+                g.budget,
+                f"is larger than peak x number of emitters = {most:g} molecules, the most any "
+                "symbol can release, so no alphabet can meet it (it would never bind)",
+                f"give a budget of at most {most:g}, or leave it out for no mean constraint",
+            )
     if not _is_int(g.emitter) or not 0 <= g.emitter < n_em:
-        raise InputError("signalling.emitter", g.emitter, f"must be an emitter index from 0 to {n_em - 1}",
-                         "give the index or the name of an emitter")
+        raise InputError(
+            "signalling.emitter",
+            g.emitter,
+            f"must be an emitter index from 0 to {n_em - 1}",
+            "give the index or the name of an emitter",
+        )
     if not isinstance(g.silent, bool):
         raise InputError("signalling.silent", g.silent, "must be true or false", "write silent = true")
     if g.amplitudes is not None:
@@ -240,9 +290,12 @@ def _check_signalling(s: Scenario) -> None:
         if len(set(float(a) for a in g.amplitudes)) != len(g.amplitudes):
             raise InputError("signalling.amplitudes", g.amplitudes, "repeats a level", fix)
         if max(g.amplitudes) > g.peak:
-            raise InputError("signalling.amplitudes", g.amplitudes,
-                             f"has a level above the peak ({g.peak:g} molecules)",
-                             "raise signalling.peak or lower the levels")
+            raise InputError(
+                "signalling.amplitudes",
+                g.amplitudes,
+                f"has a level above the peak ({g.peak:g} molecules)",
+                "raise signalling.peak or lower the levels",
+            )
 
 
 def _check_geometry(s: Scenario) -> None:
@@ -253,21 +306,27 @@ def _check_geometry(s: Scenario) -> None:
             if dist <= radii[j]:
                 where = "on the surface of" if dist == radii[j] else f"{um(radii[j] - dist)} inside"
                 raise InputError(
-                    f"emitter[{i}].position", e.position,
+                    f"emitter[{i}].position",
+                    e.position,
                     f'lies {where} receiver[{j}] "{r.name}" (centre distance {um(dist)}, radius {um(radii[j])})',
-                    f"move the emitter more than {um(radii[j] - dist)} further out, so that its distance from "
-                    f"the receiver centre exceeds {um(radii[j])}")
+                    f"move the emitter at least {um(radii[j] - dist)} further out: its distance from the centre "
+                    f'of "{r.name}" must exceed the radius {um(radii[j])} (it is {um(dist)} now)',
+                )
     for a in range(len(s.receivers)):
         for b in range(a + 1, len(s.receivers)):
             dist = float(np.linalg.norm(rc[a] - rc[b]))
             overlap = radii[a] + radii[b] - dist
             if overlap >= 0.0:
-                how = "touches" if overlap == 0.0 else f"overlaps by {um(overlap)}"
+                other = f'receiver[{a}] "{s.receivers[a].name}"'
+                how = f"touches {other}" if overlap == 0.0 else f"overlaps {other} by {um(overlap)}"
                 raise InputError(
-                    f"receiver[{b}].centre", s.receivers[b].centre,
-                    f'receiver[{b}] "{s.receivers[b].name}" {how} receiver[{a}] "{s.receivers[a].name}" '
+                    f"receiver[{b}].centre",
+                    s.receivers[b].centre,
+                    f'receiver[{b}] "{s.receivers[b].name}" {how} '
                     f"(centre distance {um(dist)}, radii {um(radii[a])} + {um(radii[b])})",
-                    f"move the centres more than {um(overlap)} further apart, or shrink a radius")
+                    f"move the centres more than {um(radii[a] + radii[b])} apart (they are {um(dist)} apart now), "
+                    "or shrink a radius",
+                )
 
 
 # -- warnings ----------------------------------------------------------------------------------------------------
@@ -288,34 +347,46 @@ def geometry_warnings(s: Scenario) -> list[str]:
             dist = float(np.linalg.norm(em[i] - rc[j]))
             gap = dist - radii[j]
             if gap < _NEAR_SURFACE * radii[j]:
-                out.append(f'emitter "{e.name}" is {um(gap)} from the surface of receiver "{r.name}", less than '
-                           f"{_NEAR_SURFACE:g} of its radius ({um(radii[j])}); most of its signal arrives within "
-                           "a very short time")
+                out.append(
+                    f'emitter "{e.name}" is {um(gap)} from the surface of receiver "{r.name}", less than '
+                    f"{_NEAR_SURFACE:g} of its radius ({um(radii[j])}); most of its signal arrives within "
+                    "a very short time"
+                )
             basis = gap if r.kind == "absorbing" else dist
             peak = float(hitting_peak_time(basis, dcoef, k))
             earliest = min(earliest, peak)
             if peak > _LATE_PEAK_SLOTS * ts:
-                out.append(f'the signal from emitter "{e.name}" at receiver "{r.name}" peaks {peak / ts:.3g} '
-                           f"slots after release (at {peak:.3g} s; symbol_interval {ts:.3g} s), so most of it "
-                           "arrives in later slots as interference")
+                out.append(
+                    f'the signal from emitter "{e.name}" at receiver "{r.name}" peaks {peak / ts:.3g} '
+                    f"slots after release (at {peak:.3g} s; symbol_interval {ts:.3g} s), so most of it "
+                    "arrives in later slots as interference"
+                )
     for a in range(len(s.receivers)):
         for b in range(a + 1, len(s.receivers)):
             gap = float(np.linalg.norm(rc[a] - rc[b])) - radii[a] - radii[b]
             small = min(radii[a], radii[b])
             if gap < _NEAR_SURFACE * small:
-                out.append(f'receivers "{s.receivers[a].name}" and "{s.receivers[b].name}" are {um(gap)} apart, '
-                           f"less than {_NEAR_SURFACE:g} of the smaller radius ({um(small)})")
+                out.append(
+                    f'receivers "{s.receivers[a].name}" and "{s.receivers[b].name}" are {um(gap)} apart, '
+                    f"less than {_NEAR_SURFACE:g} of the smaller radius ({um(small)})"
+                )
     for r in s.receivers:
         if r.kind == "passive" and r.sample_offset is not None and r.sample_offset < _EARLY_SAMPLE * ts:
-            out.append(f'passive receiver "{r.name}" samples {r.sample_offset:.3g} s into the slot, '
-                       f"{r.sample_offset / ts:.2%} of the symbol_interval")
+            out.append(
+                f'passive receiver "{r.name}" samples {r.sample_offset:.3g} s into the slot, '
+                f"{r.sample_offset / ts:.2%} of the symbol_interval"
+            )
     c = s.channel
     if c.time_step is not None and c.time_step > _COARSE_STEP * earliest:
-        out.append(f"the particle time_step ({c.time_step:.3g} s) is {c.time_step / earliest:.3g} of the earliest "
-                   f"peak time ({earliest:.3g} s); the step error of the particle model grows with this ratio")
+        out.append(
+            f"the particle time_step ({c.time_step:.3g} s) is {c.time_step / earliest:.3g} of the earliest "
+            f"peak time ({earliest:.3g} s); the step error of the particle model grows with this ratio"
+        )
     if isinstance(c.memory, int):
         work = float(c.particles) * len(s.emitters) * (c.memory + 1)
         if work > _HEAVY_WORK:
-            out.append(f"particles x emitters x (memory + 1) = {work:.3g} molecule-slots for the particle model; "
-                       "expect a long run")
+            out.append(
+                f"particles x emitters x (memory + 1) = {work:.3g} molecule-slots for the particle model; "
+                "expect a long run"
+            )
     return out
