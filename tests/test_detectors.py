@@ -38,7 +38,7 @@ def _memoryless_hits(p):
 
 
 def _poisson_tail_error(tau, lam0, lam1, p0, p1):
-    """½[P(Y >= τ | 0) + P(Y < τ | 1)] generalised to priors, by direct summation of the Poisson pmf (math only)."""
+    """½[P(Y >= τ | 0) + P(Y < τ | 1)] generalised to priors, by direct summation of the Poisson pmf (math)."""
     def cdf(k, lam):  # P(Y <= k)
         return sum(math.exp(-lam) * lam**i / math.factorial(i) for i in range(int(k) + 1)) if k >= 0 else 0.0
     return p0 * (1.0 - cdf(tau - 1, lam0)) + p1 * cdf(tau - 1, lam1)
@@ -202,7 +202,7 @@ def test_sequence_detection_helps_under_strong_isi():
     assert res["viterbi"].ser_interval[0] < res["decision_feedback"].ser_interval[1]
 
 
-# -- rates ---------------------------------------------------------------------------------------------------------
+# -- rates -------------------------------------------------------------------------------------------------------
 def _soft_information(lams, law, y_max=200):
     """I(X; Y) in bits for a memoryless Poisson channel by direct summation over y (scipy.stats.poisson.pmf)."""
     y = np.arange(y_max)
@@ -252,12 +252,10 @@ def test_wilson_interval_reference_values():
 # -- contract and errors -----------------------------------------------------------------------------------------
 @pytest.mark.parametrize("name", sorted(DETECTORS))
 def test_every_detector_returns_a_complete_result(name):
-    a = _ook(800.0)
     a2 = build_alphabet(Signalling(scheme="amplitude", levels=2, peak=800.0), 2)  # 2 emitters, one silent
     hits = np.zeros((2, 2, 2))
     hits[:, :, 0] = [[0.008, 0.002], [0.002, 0.008]]
     hits[:, :, 1] = 0.001
-    del a
     r = detector_performance(name, hits, [0.5, 0.5], a2, [0.6, 0.4], n_symbols=2000, seed=0)
     assert isinstance(r, DetectorResult) and r.name == name
     assert r.confusion.shape == (2, 2) and r.confusion.sum() == r.n_symbols == 2000

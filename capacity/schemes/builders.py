@@ -34,7 +34,13 @@ import numpy as np
 from capacity.errors import InputError
 from capacity.scenario.types import Signalling
 from capacity.schemes.alphabet import Alphabet
-from capacity.schemes.labelling import gray_labels, natural_labels, product_labels, product_symbol_name, symbol_name
+from capacity.schemes.labelling import (
+    gray_labels,
+    natural_labels,
+    product_labels,
+    product_symbol_name,
+    symbol_name,
+)
 
 MAX_SYMBOLS = 4096
 """Largest alphabet the builders make (a product alphabet grows as M^E; the capacity stage scales with S)."""
@@ -57,8 +63,8 @@ def amplitude_levels(levels: int, peak: float) -> np.ndarray:
     out = np.rint(raw)
     if np.unique(out).size != out.size:
         raise InputError("signalling.levels", int(levels),
-                         f"{levels} levels do not fit between 0 and peak = {peak:g} molecules once rounded to whole "
-                         "molecules (two levels coincide)",
+                         f"{levels} levels do not fit between 0 and peak = {peak:g} molecules once rounded to "
+                         "whole molecules (two levels coincide)",
                          "use fewer levels or a larger peak")
     return out
 
@@ -244,7 +250,8 @@ def build_alphabet(signalling: Signalling, n_emitters: int) -> Alphabet:
     """
     builder = SCHEMES.get(signalling.scheme)
     if builder is None:
-        raise InputError("signalling.scheme", signalling.scheme, f"unknown scheme; choose one of {sorted(SCHEMES)}",
+        raise InputError("signalling.scheme", signalling.scheme,
+                         f"unknown scheme; choose one of {sorted(SCHEMES)}",
                          "set scheme to \"amplitude\", \"spatial\", \"multiplex\" or \"hybrid\"")
     alphabet = builder(signalling, n_emitters)
     check_budget(alphabet, signalling.budget)

@@ -3,8 +3,8 @@
 For slot k the detector assumes the past symbols equal its own decisions ŝ_{k−1}, …, ŝ_{k−L} (the known preamble
 before slot 0) and picks
 
-    ŝ_k = argmax_s [ ln π_s + Σ_j (y_kj ln μ_sj − μ_sj) ],   μ_sj = c_j + Σ_{l=0..L} Σ_i x_{ŝ_{k−l}}[i] hits[i, j, l]
-                                                                  (with ŝ_k = s at l = 0),
+    ŝ_k = argmax_s [ ln π_s + Σ_j (y_kj ln μ_sj − μ_sj) ],
+    μ_sj = c_j + Σ_i x_s[i] hits[i, j, 0] + Σ_{l=1..L} Σ_i x_{ŝ_{k−l}}[i] hits[i, j, l],
 
 i.e. the symbol-by-symbol MAP detector with the ISI mean of the decided past subtracted instead of its average
 (decision-feedback equalisation, Austin, MIT RLE Tech. Rep. 461, 1967 [memory]; Belfiore & Park, Proc. IEEE 67(8),

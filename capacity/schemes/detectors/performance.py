@@ -1,7 +1,8 @@
 """Error rates and hard-decision rates of the detectors, by simulation of the Poisson counting channel with ISI.
 
 :func:`detector_performance` draws n i.i.d. symbols from the input law (after a random known preamble of L
-symbols), simulates the counts (see :mod:`capacity.schemes.detectors.problem`), runs the named detector and reports:
+symbols), simulates the counts (see :mod:`capacity.schemes.detectors.problem`), runs the named detector and
+reports:
 
 * symbol error rate with a 95 % Wilson score interval (Wilson, JASA 22, 1927);
 * bit error rate (bit labels from the alphabet) with a 95 % Wilson interval computed with the n SYMBOLS as trials:

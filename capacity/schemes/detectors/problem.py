@@ -91,7 +91,8 @@ def make_problem(hits, background, alphabet: Alphabet, input_law, *, interferenc
         log_prior = np.log(law) if prior else np.zeros_like(law)
     pre = np.zeros(n_lag - 1, dtype=np.int64) if preamble is None else np.asarray(preamble, dtype=np.int64)
     if pre.shape != (n_lag - 1,) or np.any(pre < 0) or np.any(pre >= symbols.shape[0]):
-        raise InputError("preamble", pre.tolist(), f"must be {n_lag - 1} symbol indices in 0..{symbols.shape[0]-1}",
+        raise InputError("preamble", pre.tolist(),
+                         f"must be {n_lag - 1} symbol indices in 0..{symbols.shape[0] - 1}",
                          "leave it out (all symbol 0) or draw one with draw_preamble")
     return DetectionProblem(h, offset, symbols, law, log_prior, pre)
 
@@ -113,7 +114,7 @@ def draw_preamble(problem: DetectionProblem, rng: np.random.Generator) -> Detect
 
 
 def lag_means(problem: DetectionProblem) -> np.ndarray:
-    """Mean counts contributed by each symbol at each lag: (L+1, S, R), [l, s, j] = Σ_i symbols[s, i] hits[i, j, l]."""
+    """Mean counts each symbol adds at each lag, (L+1, S, R): [l, s, j] = Σ_i symbols[s, i] hits[i, j, l]."""
     return np.einsum("se,erl->lsr", problem.symbols, problem.hits)
 
 
@@ -147,7 +148,8 @@ def simulate(problem: DetectionProblem, n_symbols: int, rng: np.random.Generator
 def poisson_scores(counts: np.ndarray, means: np.ndarray) -> np.ndarray:
     """Poisson log-likelihoods without the log(y!) term, summed over receivers.
 
-    counts : (n, R); means : (S, R). Returns (n, S): Σ_j y_j ln μ_sj − μ_sj (0·ln 0 = 0; y > 0 with μ = 0 gives −inf).
+    counts : (n, R); means : (S, R). Returns (n, S): Σ_j y_j ln μ_sj − μ_sj (0·ln 0 = 0; y > 0 with μ = 0 gives
+    −inf).
     """
     y = np.asarray(counts, dtype=float)
     return xlogy(y[:, None, :], means[None, :, :]).sum(-1) - means.sum(-1)[None, :]

@@ -2,8 +2,8 @@
 
 For two symbols with summed mean counts λ_lo < λ_hi (background + direct contribution + mean ISI, summed over
 receivers) and prior probabilities π_lo, π_hi, the summed count Z is Poisson(λ) under each hypothesis (a sum of
-independent Poisson counts). The likelihood ratio P(z|hi)/P(z|lo) = e^(λ_lo−λ_hi) (λ_hi/λ_lo)^z grows with z, so the
-MAP rule "decide hi iff π_hi P(z|hi) >= π_lo P(z|lo)" is a threshold rule, z >= τ, with
+independent Poisson counts). The likelihood ratio P(z|hi)/P(z|lo) = e^(λ_lo−λ_hi) (λ_hi/λ_lo)^z grows with z, so
+the MAP rule "decide hi iff π_hi P(z|hi) >= π_lo P(z|lo)" is a threshold rule, z >= τ, with
 
     τ = max(0, ceil( (λ_hi − λ_lo + ln(π_lo/π_hi)) / ln(λ_hi/λ_lo) ))          (λ_lo > 0),
 
@@ -68,7 +68,8 @@ def _binary_means(problem: DetectionProblem) -> tuple[np.ndarray, np.ndarray]:
     """(order, λ) with order = symbol indices sorted by summed mean count, λ the summed means (2,)."""
     if problem.size != 2:
         raise InputError("detector", "threshold",
-                         f"the threshold detector is for two-symbol (on-off keying) alphabets, got S = {problem.size}",
+                         "the threshold detector is for two-symbol (on-off keying) alphabets, "
+                         f"got S = {problem.size}",
                          "use symbol_ml, decision_feedback or viterbi for larger alphabets")
     lam = symbol_means(problem).sum(axis=1)
     order = np.argsort(lam, kind="stable")
@@ -97,8 +98,10 @@ def threshold_error_rate(problem: DetectionProblem) -> tuple[float, float]:
     Raises InputError when the response has ISI (then there is no closed form; simulate instead).
     """
     if problem.memory > 0 and np.any(problem.hits[:, :, 1:] > 0):
-        raise InputError("hits", problem.hits.shape, "the closed-form threshold error rate needs a channel without "
-                         "ISI (hits[:, :, 1:] all zero)", "use detector_performance to simulate it")
+        raise InputError("hits", problem.hits.shape,
+                         "the closed-form threshold error rate needs a channel without ISI "
+                         "(hits[:, :, 1:] all zero)",
+                         "use detector_performance to simulate it")
     order, lam = _binary_means(problem)
     tau = ook_threshold(problem)
     law = problem.input_law  # the true symbol frequencies weight the two error events

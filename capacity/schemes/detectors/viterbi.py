@@ -41,7 +41,8 @@ def trellis(problem: DetectionProblem) -> tuple[np.ndarray, np.ndarray, np.ndarr
     n_states = n_s ** big_l
     if n_states > MAX_STATES:
         raise InputError("detector", "viterbi",
-                         f"the trellis would have S^L = {n_s}^{big_l} = {n_states} states (more than {MAX_STATES})",
+                         f"the trellis would have S^L = {n_s}^{big_l} = {n_states} states "
+                         f"(more than {MAX_STATES})",
                          "use decision_feedback, or shorten the memory (fewer lags) or the alphabet")
     lm = lag_means(problem)  # (L+1, S, R)
     states = np.arange(n_states, dtype=np.int64)
@@ -60,9 +61,12 @@ def _viterbi_core(y, start_metric, pred, sym, means, log_prior):
     """Forward scan + traceback. y (n, R); start_metric (N,); pred (N, S); sym (N,); means (N, S, R);
     log_prior (S,). Returns decisions (n,) int64."""
     cost = means.sum(-1) - log_prior[sym][:, None]  # (N, S)
+    # ln μ with μ = 0 replaced by -1e300: then y·ln μ is 0 for y = 0 (0·ln 0 = 0) and hugely negative for y > 0
+    # (an impossible branch), without the NaN that 0·(−inf) would give inside the matrix product.
+    log_means = jnp.where(means > 0, jnp.log(jnp.where(means > 0, means, 1.0)), -1e300)  # (N, S, R)
 
     def forward(metric, yk):
-        branch = jax.scipy.special.xlogy(yk[None, None, :], means).sum(-1) - cost  # (N, S)
+        branch = log_means @ yk - cost  # (N, S): Σ_j y_j ln μ_j − μ_j + ln π
         cand = metric[pred] + branch
         best = jnp.max(cand, axis=1)
         top = jnp.max(best)
