@@ -241,12 +241,52 @@ def test_hard_rate_matches_exact_binary_channel_of_the_threshold():
     assert r.rate <= _soft_information([lam0, lam1], law) + 4 * r.rate_stderr
 
 
-def test_wilson_interval_reference_values():
-    # Wilson (1927) score interval; 0 of 10: upper limit 0.2775 [memory]; 5 of 10 symmetric about 0.5
-    lo, hi = wilson_interval(0, 10)
-    assert lo == 0.0 and hi == pytest.approx(0.2775, abs=1e-4)
-    lo, hi = wilson_interval(5, 10)
-    assert lo == pytest.approx(1 - hi, abs=1e-12) and hi == pytest.approx(0.7634, abs=1e-4)  # [memory]
+def test_wilson_interval_matches_scipy():
+    # Wilson (1927) score interval; outside reference: scipy.stats.binomtest(...).proportion_ci(method="wilson")
+    from scipy.stats import binomtest
+
+    for k, n in [(0, 10), (5, 10), (37, 2000), (1999, 2000)]:
+        ci = binomtest(k, n).proportion_ci(confidence_level=0.95, method="wilson")
+        lo, hi = wilson_interval(k, n)
+        assert lo == pytest.approx(ci.low, abs=1e-12) and hi == pytest.approx(ci.high, abs=1e-12)
+    assert wilson_interval(0, 10)[1] == pytest.approx(0.2775, abs=1e-4)  # textbook value [memory]
+
+
+def test_interference_acts_as_extra_background():
+    # the model adds the constant interference to the background mean (design notes): same seed, same draws
+    rng = np.random.default_rng(9)
+    hits = rng.uniform(0.002, 0.01, size=(2, 2, 2))
+    a = build_alphabet(Signalling(scheme="spatial", peak=500.0), 2)
+    law = np.full(3, 1 / 3)
+    r1 = detector_performance("viterbi", hits, [1.0, 0.5], a, law, n_symbols=500, seed=3, interference=[0.5, 1.5])
+    r2 = detector_performance("viterbi", hits, [1.5, 2.0], a, law, n_symbols=500, seed=3)
+    np.testing.assert_array_equal(r1.confusion, r2.confusion)
+
+
+def test_zero_forcing_on_product_alphabet_is_per_emitter_nearest_level():
+    # for a product alphabet the nearest release vector is the nearest level per emitter (separable distance)
+    rng = np.random.default_rng(4)
+    hits = rng.uniform(0.002, 0.02, size=(2, 3, 1))
+    a = build_alphabet(Signalling(scheme="multiplex", levels=4, peak=900.0), 2)
+    prob = make_problem(hits, [1.0, 1.0, 1.0], a, np.full(a.size, 1 / a.size))
+    _, y = simulate(prob, 400, rng)
+    xhat = zero_forcing_estimate(y, prob)
+    levels = np.unique(a.symbols)
+    per = levels[np.argmin(np.abs(xhat[:, :, None] - levels[None, None, :]), axis=2)]  # (n, E)
+    np.testing.assert_array_equal(a.symbols[zero_forcing(y, prob)], per)
+
+
+def test_viterbi_second_call_does_not_recompile():
+    from capacity.schemes.detectors.viterbi import _viterbi_core
+
+    rng = np.random.default_rng(0)
+    prob = draw_preamble(make_problem(np.full((1, 1, 3), 0.004), [1.0], _ook(), [0.5, 0.5]), rng)
+    _, y = simulate(prob, 64, rng)
+    viterbi(y, prob)
+    before = _viterbi_core._cache_size()
+    _, y2 = simulate(prob, 64, rng)
+    viterbi(y2, prob)
+    assert _viterbi_core._cache_size() == before
 
 
 # -- contract and errors -----------------------------------------------------------------------------------------
