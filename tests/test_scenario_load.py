@@ -95,6 +95,14 @@ def test_signalling_emitter_by_name_and_index():
     assert scenario_from_dict(d).signalling.emitter == 1
 
 
+def test_amplitudes_override_levels_and_peak():
+    # as in Signalling: explicit amplitudes override levels and peak, which are kept as written
+    d = base()
+    d["signalling"] = {"scheme": "hybrid", "amplitudes": [0, 5000], "levels": 3, "peak": 1000, "emitter": "B"}
+    g = scenario_from_dict(d).signalling
+    assert (g.amplitudes, g.levels, g.peak, g.emitter) == ((0.0, 5000.0), 3, 1000.0, 1)
+
+
 def test_amplitudes_set_levels_and_peak():
     d = base()
     d["signalling"] = {"amplitudes": [0, 400, "1000 molecules"]}
@@ -231,13 +239,12 @@ CASES = [
     (_set(["signalling"], {"emitter": "C"}), r"signalling\.emitter = 'C': is not the name of an emitter"),
     (_set(["signalling"], {"emitter": "b"}), r"signalling\.emitter.*did you mean \"B\""),
     (_set(["signalling"], {"emitter": 2}), r"signalling\.emitter = 2: is not an emitter index \(0 to 1\)"),
-    (
-        _set(["signalling"], {"scheme": "spatial", "emitter": 0}),
-        r"signalling\.emitter.*only used by the \"amplitude\"",
-    ),
-    (_set(["signalling"], {"amplitudes": [0, 500], "levels": 3}), r"signalling\.levels.*disagrees with the 2"),
     (_set(["signalling"], {"amplitudes": [0, 500, 500]}), r"signalling\.amplitudes.*repeats a level"),
-    (_set(["signalling"], {"amplitudes": [0, 5000], "peak": 1000}), r"signalling\.amplitudes.*above the peak"),
+    (_set(["signalling"], {"amplitudes": [0, -5]}), r"signalling\.amplitudes\[1\].*must not be negative"),
+    (
+        _set(["signalling"], {"amplitudes": [0, 100], "peak": 1000, "budget": 300}),
+        r"budget.*largest amplitude x number of emitters = 200",
+    ),
     # sample_offset
     (_set(["receiver", 0, "sample_offset"], "10 ms"), r"receiver\[0\]\.sample_offset.*only used by passive"),
     # geometry

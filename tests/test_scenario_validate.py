@@ -92,7 +92,11 @@ BAD = [
     (dict(signalling=Signalling(silent=1)), r"signalling\.silent.*true or false"),
     (dict(signalling=Signalling(amplitudes=(5.0,))), r"signalling\.amplitudes.*at least two levels"),
     (dict(signalling=Signalling(amplitudes=(0.0, -5.0))), r"signalling\.amplitudes\[1\].*must not be negative"),
-    (dict(signalling=Signalling(amplitudes=(0.0, 2000.0))), r"signalling\.amplitudes.*above the peak \(1000"),
+    (dict(signalling=Signalling(amplitudes=(0.0, 20.0, 20.0))), r"signalling\.amplitudes.*repeats a level"),
+    (
+        dict(signalling=Signalling(amplitudes=(0.0, 2000.0), budget=4001.0)),
+        r"budget.*largest amplitude x number of emitters = 4000",
+    ),
 ]
 
 
@@ -106,6 +110,12 @@ def test_bad_values(over, pattern):
 def test_budget_equal_to_the_most_is_allowed():
     s = make(signalling=Signalling(peak=100.0, budget=200.0))
     assert validate_scenario(s) is s
+
+
+def test_bad_symbol_interval_reported_before_sample_offset():
+    rx = (Receiver("R1", (15 * UM, 0.0, 0.0), 5 * UM, kind="passive", sample_offset=0.05),)
+    with pytest.raises(InputError, match=r"channel\.symbol_interval = nan"):
+        validate_scenario(make(receivers=rx, channel=chan(symbol_interval=math.nan)))
 
 
 def test_not_a_scenario():
@@ -154,6 +164,8 @@ def test_warning_emitter_near_surface():
     s = make(emitters=(Emitter("A", (9.6 * UM, 0.0, 0.0)),))  # 0.4 um from R1's surface (< 0.5 um = 0.1 r)
     w = geometry_warnings(validate_scenario(s))
     assert len(w) == 1 and '"A" is 0.4 um from the surface of receiver "R1"' in w[0]
+    # peak d^2/(6D) = (0.4 um)^2 / (6 x 79.4 um^2/s) = 3.359e-4 s (references.md, Yilmaz et al. 2014)
+    assert "peaks 0.000336 s after release" in w[0]
 
 
 def test_warning_receivers_close():

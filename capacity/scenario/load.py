@@ -317,15 +317,8 @@ def _signalling(t: dict, emitters: tuple[Emitter, ...]) -> Signalling:
             )
         amplitudes = tuple(to_si(a, "count", f"{p}amplitudes[{k}]") for k, a in enumerate(amplitudes))
     levels_fix = "give 2 for on-off keying, or more levels"
-    if "levels" in t:
+    if "levels" in t:  # explicit amplitudes override it (as in Signalling), so it is kept as written
         levels = _integer(t["levels"], p + "levels", levels_fix)
-        if amplitudes is not None and levels != len(amplitudes):
-            raise InputError(
-                p + "levels",
-                t["levels"],
-                f"disagrees with the {len(amplitudes)} amplitudes given",
-                "leave levels out when amplitudes are given, or make them agree",
-            )
     else:
         levels = len(amplitudes) if amplitudes is not None else defaults.levels
     if "peak" in t:
@@ -336,14 +329,7 @@ def _signalling(t: dict, emitters: tuple[Emitter, ...]) -> Signalling:
     if budget is not None:
         budget = to_si(budget, "count", p + "budget")
     emitter = defaults.emitter
-    if "emitter" in t:
-        if scheme != "amplitude":
-            raise InputError(
-                p + "emitter",
-                t["emitter"],
-                f'is only used by the "amplitude" scheme, not "{scheme}"',
-                'remove it, or set scheme = "amplitude"',
-            )
+    if "emitter" in t:  # only the amplitude scheme uses it; accepted (and checked) with every scheme
         emitter = _emitter_index(t["emitter"], emitters)
     silent = t.get("silent", defaults.silent)
     if not isinstance(silent, bool):

@@ -129,7 +129,8 @@ def validate_scenario(s: Scenario) -> Scenario:
     (0, symbol_interval]; channel settings (symbol_interval > 0, memory an integer in [0, 2000] or ``"auto"``,
     memory_tolerance in (0, 1), background >= 0 with 1 or R entries, known counting/residual/response names,
     particles > 0, 0 < time_step <= symbol_interval, seed >= 0); signalling (scheme, levels >= 2, peak > 0,
-    0 < budget <= peak * E, emitter index in range, explicit amplitudes >= 0, distinct, at most the peak);
+    0 < budget <= peak * E (the largest amplitude instead of the peak when explicit amplitudes are
+    given; they override levels and peak), emitter index in range, amplitudes >= 0 and distinct);
     geometry: no emitter inside or on a receiver, no two receivers overlapping or touching.
     """
     if not isinstance(s, Scenario):
@@ -139,6 +140,9 @@ def validate_scenario(s: Scenario) -> Scenario:
     if not isinstance(s.name, str) or not s.name.strip():
         raise InputError("name", s.name, "must be a non-empty string", 'add a line such as name = "two receivers"')
     _check_medium(s)
+    _positive(
+        "channel.symbol_interval", s.channel.symbol_interval, 'give a positive time such as "100 ms" or 0.1 (s)'
+    )
     _check_emitters_receivers(s)
     _check_channel(s)
     _check_signalling(s)
@@ -252,6 +256,8 @@ def _check_channel(s: Scenario) -> None:
 def _check_signalling(s: Scenario) -> None:
     g = s.signalling
     _choice("signalling.scheme", g.scheme, SCHEMES)
+    if g.amplitudes is not None:
+        _check_amplitudes(g.amplitudes)
     if not _is_int(g.levels) or g.levels < 2:
         raise InputError(
             "signalling.levels",
@@ -263,12 +269,13 @@ def _check_signalling(s: Scenario) -> None:
     n_em = len(s.emitters)
     if g.budget is not None:
         _positive("signalling.budget", g.budget, "give a mean number of molecules per symbol > 0, or leave it out")
-        most = float(g.peak) * n_em
+        top, which = (float(g.peak), "peak") if g.amplitudes is None else (max(g.amplitudes), "largest amplitude")
+        most = float(top) * n_em
         if g.budget > most:
             raise InputError(
                 "signalling.budget",
                 g.budget,
-                f"is larger than peak x number of emitters = {most:g} molecules, the most any "
+                f"is larger than {which} x number of emitters = {most:g} molecules, the most any "
                 "symbol can release, so no alphabet can meet it (it would never bind)",
                 f"give a budget of at most {most:g}, or leave it out for no mean constraint",
             )
@@ -281,21 +288,17 @@ def _check_signalling(s: Scenario) -> None:
         )
     if not isinstance(g.silent, bool):
         raise InputError("signalling.silent", g.silent, "must be true or false", "write silent = true")
-    if g.amplitudes is not None:
-        fix = "give at least two distinct release sizes >= 0, e.g. [0, 500, 1000]"
-        if not isinstance(g.amplitudes, tuple) or len(g.amplitudes) < 2:
-            raise InputError("signalling.amplitudes", g.amplitudes, "needs at least two levels", fix)
-        for k, a in enumerate(g.amplitudes):
-            _non_negative(f"signalling.amplitudes[{k}]", a, fix)
-        if len(set(float(a) for a in g.amplitudes)) != len(g.amplitudes):
-            raise InputError("signalling.amplitudes", g.amplitudes, "repeats a level", fix)
-        if max(g.amplitudes) > g.peak:
-            raise InputError(
-                "signalling.amplitudes",
-                g.amplitudes,
-                f"has a level above the peak ({g.peak:g} molecules)",
-                "raise signalling.peak or lower the levels",
-            )
+
+
+def _check_amplitudes(amplitudes) -> None:
+    """Explicit levels (they override levels and peak): at least two distinct finite counts >= 0."""
+    fix = "give at least two distinct release sizes >= 0, e.g. [0, 500, 1000]"
+    if not isinstance(amplitudes, tuple) or len(amplitudes) < 2:
+        raise InputError("signalling.amplitudes", amplitudes, "needs at least two levels", fix)
+    for k, a in enumerate(amplitudes):
+        _non_negative(f"signalling.amplitudes[{k}]", a, fix)
+    if len(set(float(a) for a in amplitudes)) != len(amplitudes):
+        raise InputError("signalling.amplitudes", amplitudes, "repeats a level", fix)
 
 
 def _check_geometry(s: Scenario) -> None:
@@ -334,9 +337,10 @@ def geometry_warnings(s: Scenario) -> list[str]:
     """Legal but suspicious choices in a valid scenario, as factual sentences (empty list if none).
 
     Flags: an emitter closer to a receiver surface than 0.1 of its radius; two receivers closer than 0.1 of the
-    smaller radius; a hitting-rate peak (``hitting_peak_time``) more than 5 slots after release; a passive
-    receiver sampling in the first 1% of the slot; a particle time_step above 0.1 of the earliest peak time; and
-    particles x emitters x (memory + 1) above 5e7 molecule-slots.
+    smaller radius; a signal peak more than 5 slots after release (``hitting_peak_time`` of the gap for absorbing
+    receivers, of the centre distance -- the peak of the concentration at the centre -- for passive ones); a
+    passive receiver sampling in the first 1% of the slot; a particle time_step above 0.1 of the earliest peak
+    time; and particles x emitters x (memory + 1) above 5e7 molecule-slots.
     """
     out: list[str] = []
     em, rc, radii = s.emitter_positions, s.receiver_centres, s.receiver_radii
@@ -346,20 +350,20 @@ def geometry_warnings(s: Scenario) -> list[str]:
         for j, r in enumerate(s.receivers):
             dist = float(np.linalg.norm(em[i] - rc[j]))
             gap = dist - radii[j]
-            if gap < _NEAR_SURFACE * radii[j]:
-                out.append(
-                    f'emitter "{e.name}" is {um(gap)} from the surface of receiver "{r.name}", less than '
-                    f"{_NEAR_SURFACE:g} of its radius ({um(radii[j])}); most of its signal arrives within "
-                    "a very short time"
-                )
             basis = gap if r.kind == "absorbing" else dist
             peak = float(hitting_peak_time(basis, dcoef, k))
             earliest = min(earliest, peak)
+            if gap < _NEAR_SURFACE * radii[j]:
+                out.append(
+                    f'emitter "{e.name}" is {um(gap)} from the surface of receiver "{r.name}", less than '
+                    f"{_NEAR_SURFACE:g} of its radius ({um(radii[j])}); its signal there peaks {peak:.3g} s "
+                    "after release"
+                )
             if peak > _LATE_PEAK_SLOTS * ts:
                 out.append(
                     f'the signal from emitter "{e.name}" at receiver "{r.name}" peaks {peak / ts:.3g} '
-                    f"slots after release (at {peak:.3g} s; symbol_interval {ts:.3g} s), so most of it "
-                    "arrives in later slots as interference"
+                    f"slots after release (at {peak:.3g} s; symbol_interval {ts:.3g} s), so slot 0 holds "
+                    "little of it and most arrives in later slots"
                 )
     for a in range(len(s.receivers)):
         for b in range(a + 1, len(s.receivers)):
