@@ -241,6 +241,33 @@ def test_hard_rate_matches_exact_binary_channel_of_the_threshold():
     assert r.rate <= _soft_information([lam0, lam1], law) + 4 * r.rate_stderr
 
 
+def test_memoryless_map_error_rate_matches_direct_summation():
+    # exact SER of the symbol MAP rule, one receiver, no ISI: Σ_s π_s Σ_y P(y|s)·1[ŝ(y) ≠ s],
+    # with ŝ(y) = argmax_s π_s P(y|s) from scipy.stats.poisson.pmf, summed over y (truncation mass < 1e-12)
+    a = build_alphabet(Signalling(scheme="amplitude", levels=4, peak=1500.0), 1)
+    law = np.array([0.4, 0.3, 0.2, 0.1])
+    lams = 0.8 + 0.006 * a.symbols[:, 0]
+    y = np.arange(120)
+    w = np.array([poisson.pmf(y, lam) for lam in lams])  # (S, Y)
+    assert np.all(1.0 - w.sum(1) < 1e-12)
+    decide = np.argmax(law[:, None] * w, axis=0)  # (Y,)
+    exact = float(sum(law[s] * w[s, decide != s].sum() for s in range(4)))
+    n = 20_000
+    r = detector_performance("symbol_ml", _memoryless_hits(0.006), [0.8], a, law, n_symbols=n, seed=17)
+    assert abs(r.symbol_error_rate - exact) < 4 * math.sqrt(exact * (1 - exact) / n)
+
+
+def test_rate_standard_error_matches_spread_over_seeds():
+    # independent Monte Carlo: the delta-method standard error should match the spread of the plug-in rate over
+    # independent runs (loose factor-of-two band: 12 runs give the standard deviation to about ±20 %)
+    a = build_alphabet(Signalling(scheme="amplitude", levels=3, peak=1000.0), 1)
+    runs = [detector_performance("symbol_ml", _memoryless_hits(0.004), [1.0], a, np.full(3, 1 / 3),
+                                 n_symbols=2000, seed=100 + k) for k in range(12)]
+    spread = np.std([r.rate for r in runs], ddof=1)
+    claimed = np.mean([r.rate_stderr for r in runs])
+    assert 0.5 * claimed < spread < 2.0 * claimed
+
+
 def test_wilson_interval_matches_scipy():
     # Wilson (1927) score interval; outside reference: scipy.stats.binomtest(...).proportion_ci(method="wilson")
     from scipy.stats import binomtest
