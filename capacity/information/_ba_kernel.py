@@ -1,0 +1,166 @@
+"""Jit-compiled inner solver of the Blahut–Arimoto family (nats; one Lagrange slope ``s`` held fixed).
+
+Maximises F(p) = I(p; W) - s * sum_x p_x b_x over the input simplex, for a dense (S, Y) channel matrix W
+whose rows sum to 1 (the public wrapper appends an overflow column for truncated mass).
+
+Each iteration evaluates two candidates and keeps the one with the larger F (ties: the smaller gap):
+
+* the Blahut–Arimoto step p'_x ∝ p_x exp(d_x - s b_x), d_x = D(W_x || pW) (Arimoto 1972; Blahut 1972),
+  which never decreases F;
+* a Newton step on the KKT system of max F over the simplex (the active set is refined by dropping
+  coordinates the step would make negative). Gradient dF/dp_x = d_x - 1 - s b_x, Hessian
+  -sum_y W(y|x) W(y|x') / q(y). It converges quadratically once the support is found, which removes
+  the O(1/n) tail of the plain iteration on inputs whose optimal probability is 0.
+
+Stopping uses the certificate, valid for ANY p (Blahut 1972, Thm 2; cost form in references.md):
+C(P) <= s P + max_x [d_x - s b_x] with P = sum p b, so gap = max_x (d_x - s b_x) - F(p) >= 0.
+"""
+
+from __future__ import annotations
+
+from functools import partial
+from typing import NamedTuple
+
+import jax
+import jax.numpy as jnp
+from jax import lax
+from jax.scipy.special import logsumexp
+
+TINY = 1e-300
+_FLOOR = 1e-300  # Blahut–Arimoto step: p is floored here so an input dropped by Newton can come back
+
+
+class Evaluation(NamedTuple):
+    d: jax.Array  # (S,) D(W_x || q), nats
+    q: jax.Array  # (Y,) output law
+    info: jax.Array  # I(p; W), nats
+    objective: jax.Array  # I - s * mean cost
+    gap: jax.Array  # max_x (d_x - s b_x) - objective, nats
+
+
+@jax.jit
+def evaluate(p, w, negent, b, s, valid) -> Evaluation:
+    """q = pW, d = sum_y W ln W - W ln q, I = p.d and the certified gap (nats); rows with ``valid`` False
+    are padding (probability 0, excluded from the maximum)."""
+    q = p @ w
+    d = negent - w @ jnp.log(jnp.maximum(q, TINY))
+    info = jnp.dot(p, d)
+    objective = info - s * jnp.dot(p, b)
+    gap = jnp.max(jnp.where(valid, d - s * b, -jnp.inf)) - objective
+    return Evaluation(d, q, info, objective, gap)
+
+
+def _ba_step(p, ev: Evaluation, b, s, valid):
+    logits = jnp.where(valid, jnp.log(jnp.maximum(p, _FLOOR)) + (ev.d - s * b), -jnp.inf)
+    return jnp.exp(logits - logsumexp(logits))
+
+
+def _newton_step(p, ev: Evaluation, w, b, s, valid):
+    """Newton step on the KKT system with a drop-the-negative active set; returns a point of the simplex."""
+    n = p.shape[0]
+    g = ev.d - s * b
+    wn = w / jnp.sqrt(jnp.maximum(ev.q, TINY))[None, :]
+    hess = -(wn @ wn.T)
+    start = ((p > 0) | (g > ev.objective)) & valid  # current support plus inputs that violate the KKT condition
+    reg = 1e-12 * jnp.max(jnp.abs(jnp.diag(hess)))
+
+    def solve(active):
+        return _kkt_solve(hess, reg, active, -g + hess @ jnp.where(active, 0.0, p), -p, p)
+
+    def cond(state):
+        active, new, changed, passes = state
+        return changed & (passes < n)
+
+    def body(state):
+        active, new, _, passes = state
+        drop = active & (new < 0)
+        active = active & ~drop
+        return active, solve(active), jnp.any(drop), passes + 1
+
+    active, new, _, _ = lax.while_loop(cond, body, (start, solve(start), jnp.array(True), 0))
+    new = jnp.where(active, jnp.maximum(new, 0.0), 0.0)
+    total = jnp.sum(new)
+    ok = jnp.all(jnp.isfinite(new)) & (total > 0)
+    return jnp.where(ok, new / jnp.where(ok, total, 1.0), p)
+
+
+def _kkt_solve(hess, reg, active, rhs_active, fixed_inactive, p):
+    """Solve H_AA dA - nu 1 = rhs_A, d_i = fixed_i off A, sum(d) = 0 with one Cholesky factor.
+
+    N = -H_AA + reg I (positive definite) on A, identity off A; d = N^-1 (c - nu a) with c = -rhs on A and
+    the fixed values off A; nu from the sum constraint. Returns p + d.
+    """
+    a = active.astype(hess.dtype)
+    n_mat = -(hess * a[:, None] * a[None, :]) + jnp.diag(reg * a + (1.0 - a))
+    c = jnp.where(active, -rhs_active, fixed_inactive)
+    factor = jax.scipy.linalg.cho_factor(n_mat, lower=True)
+    sol = jax.scipy.linalg.cho_solve(factor, jnp.stack([c, a], axis=1))
+    u_c, u_a = sol[:, 0], sol[:, 1]
+    sigma = jnp.sum(jnp.where(active, 0.0, -fixed_inactive))  # mass moved off A must land on A
+    nu = (jnp.dot(a, u_c) - sigma) / jnp.dot(a, u_a)
+    return p + u_c - nu * u_a
+
+
+class Solution(NamedTuple):
+    p: jax.Array
+    ev: Evaluation
+    iterations: jax.Array
+    newton_steps: jax.Array
+    stalled: jax.Array
+    cost_slope: jax.Array  # d(mean cost)/ds at the returned point (cost^2 per nat)
+
+
+@partial(jax.jit, static_argnames=("newton",))
+def solve(w, negent, b, s, valid, p0, tol, max_iter, newton: bool = True) -> Solution:
+    """Iterate from p0 until gap <= tol (nats) or max_iter; returns the best (smallest-gap) point seen.
+
+    Shapes: w (S, Y), negent (S,), b (S,), valid (S,) bool (False marks padding rows), p0 (S,).
+    """
+    ev0 = evaluate(p0, w, negent, b, s, valid)
+    eps = 1e-14
+
+    def cond(st):
+        p, ev, it, nsteps, best_p, best_ev, since = st
+        return (best_ev.gap > tol) & (it < max_iter) & (since < 2000)
+
+    def body(st):
+        p, ev, it, nsteps, best_p, best_ev, since = st
+        p_ba = _ba_step(p, ev, b, s, valid)
+        ev_ba = evaluate(p_ba, w, negent, b, s, valid)
+        if newton:
+            p_nt = _newton_step(p, ev, w, b, s, valid)
+            ev_nt = evaluate(p_nt, w, negent, b, s, valid)
+            scale = eps * (1.0 + jnp.abs(ev_ba.objective))
+            better = ev_nt.objective > ev_ba.objective + scale
+            tie = jnp.abs(ev_nt.objective - ev_ba.objective) <= scale
+            take = better | (tie & (ev_nt.gap < ev_ba.gap))
+            take = take & jnp.isfinite(ev_nt.gap)
+            p_new = jnp.where(take, p_nt, p_ba)
+            ev_new = jax.tree_util.tree_map(lambda a, c: jnp.where(take, a, c), ev_nt, ev_ba)
+            nsteps = nsteps + take.astype(nsteps.dtype)
+        else:
+            p_new, ev_new = p_ba, ev_ba
+        improved = ev_new.gap < best_ev.gap
+        best_p = jnp.where(improved, p_new, best_p)
+        best_ev = jax.tree_util.tree_map(lambda a, c: jnp.where(improved, a, c), ev_new, best_ev)
+        since = jnp.where(improved, 0, since + 1)
+        return p_new, ev_new, it + 1, nsteps, best_p, best_ev, since
+
+    zero = jnp.array(0)
+    st = lax.while_loop(cond, body, (p0, ev0, zero, zero, p0, ev0, zero))
+    _, _, it, nsteps, best_p, best_ev, since = st
+    return Solution(best_p, best_ev, it, nsteps, since >= 2000, _cost_derivative(best_p, w, b))
+
+
+def _cost_derivative(p, w, b, support_threshold=1e-12):
+    """d(mean cost)/ds at an optimum (implicit function theorem on the KKT system restricted to the support).
+
+    [H  -1; 1^T 0] [dp; dnu] = [b; 0] on the support gives dP/ds = b . dp (<= 0), cost^2 per nat.
+    """
+    q = p @ w
+    active = p > support_threshold * jnp.max(p)
+    wn = jnp.where(active[:, None], w, 0.0) / jnp.sqrt(jnp.maximum(q, TINY))[None, :]
+    hess = -(wn @ wn.T)
+    reg = 1e-12 * jnp.max(jnp.abs(jnp.diag(hess)))
+    dp = _kkt_solve(hess, reg, active, b, jnp.zeros_like(p), jnp.zeros_like(p))
+    return jnp.dot(b, dp)

@@ -1,0 +1,353 @@
+"""Capacity of a memoryless channel, with an optional mean-cost budget, certified by upper and lower bounds.
+
+Public functions
+----------------
+blahut_arimoto(transition, cost=None, budget=None, tol=1e-9, max_iter=200_000, initial=None, slope=None)
+    -> CapacityResult (bits)
+capacity_cost_curve(transition, cost, budgets, tol=1e-9) -> list[CapacityResult]
+mutual_information(input_distribution, log_transition) -> bits (JAX, differentiable)
+
+Method: the Blahut–Arimoto iteration (S. Arimoto, IEEE Trans. IT 18(1), 1972; R. Blahut, IEEE Trans. IT
+18(4), 1972) in the Lagrangian form for a cost b(x) with slope s >= 0: p_x <- p_x exp(D(W_x||pW) - s b_x).
+Every iterate is certified: with d_x = D(W_x || pW) (nats) and P = sum_x p_x b_x,
+
+    I(p; W) <= C(P) <= s P + max_x [d_x - s b_x]                                          (Blahut 1972)
+
+and the run stops when the difference is below ``tol`` bits. The plain iteration is O(1/n) on inputs whose
+optimal probability is 0; here each step also tries a Newton step on the KKT conditions (see
+``_ba_kernel``) and keeps the better point, so the tail converges quadratically. The bounds hold for any
+p, so the acceleration cannot spoil the certificate.
+
+Truncated rows (sum < 1, e.g. a Poisson law on a finite count grid) are completed with ONE overflow
+output that carries the missing mass t_x. That lumped channel is a degraded version of the true one, so
+its capacity is a valid lower bound; conversely lumping a set L of outputs loses at most
+P(Y in L) * log2 S bits (I(X;Y) = I(X;Z) + P(L) I(X;Y | Y in L), and the last term is <= log2 S).
+The reported ``gap`` therefore adds max_x t_x * log2 S to the iteration's gap, so
+``[capacity, capacity + gap]`` brackets the capacity of the untruncated channel. Output columns that
+carry less than 1e-3 * tol / log2 S of any row's mass in total are lumped into the same overflow output
+(a speed-up; included in the same bound).
+
+With a budget the slope s is found by a safeguarded Newton iteration on mean_cost(s) = budget: the
+derivative d mean_cost / ds comes from the implicit function theorem on the KKT system, every inner solve
+is warm-started from the nearest previous solution, and a bracket keeps the search safe. The final input
+law is mixed between the two bracketing solutions (or with the cheapest symbol) so that its mean cost
+equals the budget exactly, keeping the lower bound feasible (by concavity the mixture loses nothing to
+first order).
+"""
+
+from __future__ import annotations
+
+import math
+from typing import NamedTuple
+
+import jax
+import jax.numpy as jnp
+import numpy as np
+from jax.scipy.special import logsumexp
+from scipy import special
+
+from capacity.errors import InputError
+from capacity.information import _ba_kernel as kernel
+from capacity.information.result import CapacityResult
+
+__all__ = ["blahut_arimoto", "capacity_cost_curve", "mutual_information"]
+
+LN2 = math.log(2.0)
+
+
+class _Prepared(NamedTuple):
+    w: jax.Array  # (S', Y') rows summing to 1 (overflow column), zero-padded to a bucket size
+    negent: jax.Array  # (S',) sum_y W ln W
+    valid: jax.Array  # (S',) True for real symbols, False for padding
+    n_sym: int  # S
+    tail_bits: float  # max_x (lumped mass) * log2 S
+    n_outputs: int  # Y' kept (overflow included)
+    n_given: int  # Y given
+
+
+def _matrix_of(transition) -> tuple[np.ndarray, np.ndarray]:
+    if hasattr(transition, "matrix") and hasattr(transition, "truncated_mass"):
+        w = np.asarray(transition.matrix, dtype=float)
+    else:
+        w = np.asarray(transition, dtype=float)
+    if w.ndim != 2 or w.shape[0] < 1 or w.shape[1] < 1:
+        raise InputError("transition", w.shape, "must be an (S, Y) matrix of probabilities W(y|x)",
+                         "pass a Transition or a 2-D array with one row per input symbol")
+    if not np.all(np.isfinite(w)) or np.any(w < 0):
+        raise InputError("transition", "matrix with negative or non-finite entries",
+                         "probabilities must be finite and >= 0", "check how the matrix was built")
+    sums = w.sum(axis=1)
+    if np.any(sums > 1 + 1e-9) or np.any(sums <= 0):
+        raise InputError("transition", f"row sums in [{sums.min():.3g}, {sums.max():.3g}]",
+                         "each row must sum to at most 1 (and be positive)",
+                         "normalise the rows, or pass a Transition whose truncated mass is reported")
+    if hasattr(transition, "truncated_mass"):
+        tail = np.clip(np.asarray(transition.truncated_mass, dtype=float), 0.0, 1.0)
+    else:
+        tail = np.clip(1.0 - sums, 0.0, 1.0)
+        tail = np.where(tail > 1e-13, tail, 0.0)  # row sums within rounding of 1 count as exact
+    return w, tail
+
+
+def _prepare(transition, tol: float) -> _Prepared:
+    w, tail = _matrix_of(transition)
+    n_sym, n_out = w.shape
+    log_s = math.log2(n_sym) if n_sym > 1 else 0.0
+    # lump the lightest output columns while every row loses at most `budget` of its mass
+    budget = 1e-3 * tol / max(log_s, 1.0)
+    order = np.argsort(w.max(axis=0), kind="stable")
+    lumped_rows = np.cumsum(w[:, order], axis=1)
+    n_lump = int(np.searchsorted(lumped_rows.max(axis=0), budget, side="right"))
+    n_lump = min(n_lump, n_out - 1)
+    keep = np.sort(order[n_lump:])
+    lumped = tail + (lumped_rows[:, n_lump - 1] if n_lump > 0 else 0.0)
+    kept = w[:, keep]
+    # rows are completed to 1 with the overflow column (the mass is tail + lumped, or 1 - row sum)
+    overflow = np.maximum(1.0 - kept.sum(axis=1), 0.0) if n_lump > 0 or tail.max() > 0 else None
+    if overflow is not None and overflow.max() > 0:
+        kept = np.concatenate([kept, overflow[:, None]], axis=1)
+    negent = special.xlogy(kept, kept).sum(axis=1)
+    # pad to bucket sizes so that a few compiled kernels serve every shape (zero rows/columns are inert)
+    s_pad, y_pad = _bucket(n_sym, 4), _bucket(kept.shape[1], 8)
+    w_pad = np.zeros((s_pad, y_pad))
+    w_pad[:n_sym, : kept.shape[1]] = kept
+    neg_pad = np.zeros(s_pad)
+    neg_pad[:n_sym] = negent
+    return _Prepared(jnp.asarray(w_pad), jnp.asarray(neg_pad), jnp.asarray(np.arange(s_pad) < n_sym), n_sym,
+                     float(lumped.max()) * log_s, kept.shape[1], n_out)
+
+
+def _bucket(n: int, minimum: int) -> int:
+    """Next size >= n among powers of two (up to 1024), then quarter octaves (overhead <= 25%)."""
+    size = max(minimum, 1 << max(0, (n - 1).bit_length()))
+    if size <= 1024:
+        return size
+    half = size // 2
+    return min(half + k * half // 4 for k in range(1, 5) if half + k * half // 4 >= n)
+
+
+def _check_cost(cost, n_sym: int) -> np.ndarray:
+    b = np.asarray(cost, dtype=float)
+    if b.shape != (n_sym,) or not np.all(np.isfinite(b)) or np.any(b < 0):
+        raise InputError("cost", b if b.size < 20 else b.shape, f"must be {n_sym} finite non-negative costs",
+                         "give one cost (e.g. molecules) per input symbol")
+    return b
+
+
+def _start(initial, n_sym: int) -> np.ndarray:
+    if initial is None:
+        return np.full(n_sym, 1.0 / n_sym)
+    p = np.asarray(initial, dtype=float)
+    if p.shape != (n_sym,) or not np.all(np.isfinite(p)) or np.any(p < 0) or p.sum() <= 0:
+        raise InputError("initial", p.shape, f"must be {n_sym} non-negative weights with a positive sum",
+                         "pass a previous input_distribution or None")
+    return p / p.sum()
+
+
+class _Point(NamedTuple):
+    s: float  # nats per cost unit
+    p: np.ndarray
+    sol: kernel.Solution
+    cost: float
+
+
+def _run(prep: _Prepared, b: np.ndarray, s: float, p0: np.ndarray, tol: float, max_iter: int) -> _Point:
+    sol = kernel.solve(prep.w, prep.negent, _pad(b, prep), jnp.asarray(s, dtype=jnp.float64), prep.valid,
+                       _pad(p0, prep), jnp.asarray(tol * LN2), jnp.asarray(max_iter))
+    p = np.asarray(sol.p)[: prep.n_sym]
+    return _Point(float(s), p, sol, float(p @ b))
+
+
+def _pad(v: np.ndarray, prep: _Prepared) -> jax.Array:
+    out = np.zeros(prep.valid.shape[0])
+    out[: prep.n_sym] = v
+    return jnp.asarray(out)
+
+
+def _result(prep, point: _Point, b, tol, iterations, extra="", slope_bits=None) -> CapacityResult:
+    sol = point.sol
+    gap_bits = max(float(sol.ev.gap), 0.0) / LN2
+    converged = gap_bits <= tol
+    its = int(iterations)
+    how = f"after {its} iterations ({int(sol.newton_steps)} Newton steps in the last solve)"
+    if converged:
+        msg = f"gap {gap_bits:.1e} bits {how}"
+    elif bool(sol.stalled):
+        msg = f"stalled at gap {gap_bits:.1e} bits {how} (rounding level; tol {tol:.1e} not reached)"
+    else:
+        msg = f"stopped at max_iter with gap {gap_bits:.1e} bits {how}"
+    if prep.tail_bits > 0:
+        msg += (f"; + {prep.tail_bits:.1e} bits for the truncated/lumped output mass "
+                f"({prep.n_outputs} of {prep.n_given} outputs kept)")
+    msg += extra
+    slope = point.s / LN2 if slope_bits is None else slope_bits
+    return CapacityResult(float(sol.ev.info) / LN2, point.p, gap_bits + prep.tail_bits, point.cost, its,
+                          converged, msg, float(slope))
+
+
+def _mix(prep, b, a: _Point, other_p: np.ndarray, other_cost: float, budget: float, s: float, its=0) -> _Point:
+    """Mix a (cost above budget) with a cheaper law so the mean cost equals the budget; re-evaluate."""
+    theta = (budget - other_cost) / (a.cost - other_cost)
+    theta = float(np.clip(theta, 0.0, 1.0))
+    p = theta * a.p + (1.0 - theta) * other_p
+    p = p / p.sum()
+    w = np.asarray(prep.w)[: prep.n_sym]
+    q = p @ w
+    d = np.asarray(prep.negent)[: prep.n_sym] - w @ np.log(np.maximum(q, kernel.TINY))
+    info = float(p @ d)
+    objective = info - s * float(p @ b)
+    ev = kernel.Evaluation(d, q, info, objective, float(np.max(d - s * b)) - objective)
+    sol = a.sol._replace(p=_pad(p, prep), ev=ev)
+    return _Point(s, p, sol, float(p @ b))
+
+
+def _budget_search(prep, b, budget, tol, max_iter, lo: _Point, hi: _Point | None, iterations: int):
+    """Safeguarded Newton on mean_cost(s) = budget; lo has cost > budget (s_lo >= 0), hi has cost < budget."""
+    scale = max(abs(budget), 1e-300)
+    ref = hi if hi is not None else lo
+    deriv = float(ref.sol.cost_slope)
+    s = ref.s - (ref.cost - budget) / deriv if deriv < 0 else ref.s + 1.0
+    point = ref
+    for _ in range(200):
+        if hi is not None:
+            width = hi.s - lo.s
+            if not (lo.s < s < hi.s):
+                s = 0.5 * (lo.s + hi.s)
+            if width <= 1e-14 * max(hi.s, 1e-300):
+                break
+        elif not (s > lo.s and np.isfinite(s)):
+            s = 2.0 * lo.s + 1.0
+        start = hi.p if hi is not None and abs(hi.s - s) < abs(lo.s - s) else lo.p
+        point = _run(prep, b, s, start, tol, max_iter)
+        iterations += int(point.sol.iterations)
+        if abs(point.cost - budget) <= 1e-12 * scale:
+            break
+        if point.cost > budget:
+            lo = point
+        else:
+            hi = point
+        deriv = float(point.sol.cost_slope)
+        s = point.s - (point.cost - budget) / deriv if deriv < 0 else np.nan
+    if point.cost > budget:  # make the law feasible: mix with the cheaper side
+        if hi is not None:
+            point = _mix(prep, b, point, hi.p, hi.cost, budget, point.s, iterations)
+        else:
+            cheap = np.zeros_like(point.p)
+            cheap[int(np.argmin(b))] = 1.0
+            point = _mix(prep, b, point, cheap, float(b.min()), budget, point.s, iterations)
+    elif point.cost < budget - 1e-12 * scale:  # feasible, but the certificate needs cost = budget
+        point = _mix(prep, b, lo, point.p, point.cost, budget, point.s, iterations)
+    return point, iterations, hi
+
+
+def _budget_result(prep, b, budget, tol, max_iter, unconstrained: _Point, hi, iterations):
+    b_min, b_max = float(b.min()), float(b.max())
+    if budget < b_min - 1e-12 * max(b_min, 1.0):
+        raise InputError("budget", budget, f"is below the cheapest symbol's cost {b_min:g}",
+                         f"give a budget of at least {b_min:g}")
+    if unconstrained.cost <= budget * (1 + 1e-12) or budget >= b_max:
+        return _result(prep, unconstrained, b, tol, iterations, "; budget not binding (slope 0)"), None
+    if budget <= b_min * (1 + 1e-12):
+        cheapest = np.flatnonzero(b <= b_min * (1 + 1e-12))
+        sub = blahut_arimoto(np.asarray(prep.w)[cheapest], tol=tol, max_iter=max_iter)  # rows sum to 1
+        p = np.zeros(len(b))
+        p[cheapest] = sub.input_distribution
+        return CapacityResult(sub.capacity, p, sub.gap + prep.tail_bits, float(p @ b), sub.iterations,
+                              sub.converged, sub.message + "; budget = cheapest cost: only those symbols "
+                              "are usable (slope infinite)", math.inf), None
+    point, iterations, hi = _budget_search(prep, b, budget, tol, max_iter, unconstrained, hi, iterations)
+    res = _result(prep, point, b, tol, iterations, f"; slope found for budget {budget:g}")
+    ok = res.converged and abs(res.mean_cost - budget) <= 1e-9 * max(budget, 1.0)
+    return res._replace(converged=ok), point
+
+
+def blahut_arimoto(transition, cost=None, budget=None, tol: float = 1e-9, max_iter: int = 200_000,
+                   initial=None, slope=None) -> CapacityResult:
+    """Capacity (bits per channel use) of a memoryless channel, optionally under a mean-cost budget.
+
+    transition : a :class:`~capacity.channel.transition.Transition` or an (S, Y) array W(y|x); rows may
+        sum to less than 1 (the missing mass becomes one overflow output and enters the gap, see module).
+    cost : (S,) cost per symbol (e.g. molecules), needed for ``budget`` or ``slope``.
+    budget : mean cost allowed, sum_x p_x b_x <= budget. Below the cheapest symbol: InputError; at or above
+        the unconstrained optimum's cost: the unconstrained answer (slope 0).
+    tol : stop when the certified gap (upper minus lower bound) is below ``tol`` bits.
+    max_iter : cap on iterations per inner solve.
+    initial : (S,) starting input law (warm start); default uniform.
+    slope : fixed Lagrange slope in bits per cost unit instead of a budget (a point of the C(P) curve at
+        whatever mean cost it yields).
+
+    Returns CapacityResult: capacity (= I(p;W), a certified lower bound), input_distribution, gap,
+    mean_cost, iterations, converged, message, slope (bits per cost unit).
+    """
+    if not (0 < tol < 1):
+        raise InputError("tol", tol, "must lie in (0, 1) bits", "use e.g. 1e-9")
+    if budget is not None and slope is not None:
+        raise InputError("slope", slope, "cannot be combined with budget", "give one of budget or slope")
+    prep = _prepare(transition, tol)
+    n_sym = prep.n_sym
+    b = np.zeros(n_sym) if cost is None else _check_cost(cost, n_sym)
+    if (budget is not None or slope is not None) and cost is None:
+        raise InputError("cost", None, "is needed with a budget or a slope", "give one cost per symbol")
+    p0 = _start(initial, n_sym)
+    if n_sym == 1:
+        return CapacityResult(0.0, np.ones(1), prep.tail_bits, float(b[0]), 0, True,
+                              "one input symbol: capacity 0", 0.0)
+    if slope is not None:
+        if not (np.isfinite(slope) and slope >= 0):
+            raise InputError("slope", slope, "must be finite and >= 0", "bits per cost unit, e.g. 0.01")
+        point = _run(prep, b, float(slope) * LN2, p0, tol, max_iter)
+        return _result(prep, point, b, tol, point.sol.iterations, f"; fixed slope {float(slope):g} bits/unit")
+    point = _run(prep, b, 0.0, p0, tol, max_iter)
+    if budget is None:
+        return _result(prep, point, b, tol, point.sol.iterations)
+    budget = float(budget)
+    return _budget_result(prep, b, budget, tol, max_iter, point, None, int(point.sol.iterations))[0]
+
+
+def capacity_cost_curve(transition, cost, budgets, tol: float = 1e-9, max_iter: int = 200_000
+                        ) -> list[CapacityResult]:
+    """Capacity–cost curve C(P) at each budget (bits), warm-started along the curve.
+
+    budgets : (K,) mean-cost budgets (any order; results come back in the given order). The unconstrained
+    solve is done once; budgets are visited in increasing order, each search starting from the previous
+    solution (which brackets the slope from above). Each point is certified as in :func:`blahut_arimoto`.
+    """
+    budgets = np.atleast_1d(np.asarray(budgets, dtype=float))
+    if budgets.ndim != 1 or not np.all(np.isfinite(budgets)):
+        raise InputError("budgets", budgets, "must be a 1-D array of finite budgets", "e.g. [10, 50, 100]")
+    prep = _prepare(transition, tol)
+    n_sym = prep.n_sym
+    b = _check_cost(cost, n_sym)
+    unconstrained = _run(prep, b, 0.0, np.full(n_sym, 1.0 / n_sym), tol, max_iter)
+    results: list[CapacityResult | None] = [None] * len(budgets)
+    hi = None
+    for k in np.argsort(budgets, kind="stable"):
+        res, point = _budget_result(prep, b, float(budgets[k]), tol, max_iter, unconstrained, hi,
+                                    int(unconstrained.sol.iterations))
+        results[k] = res
+        if point is not None and point.cost <= budgets[k] * (1 + 1e-12):
+            hi = point
+    return results
+
+
+def mutual_information(input_distribution, log_transition):
+    """I(X;Y) in bits for an input law (S,) and log W (S, Y) (JAX, differentiable in both).
+
+    I = sum_x p_x sum_y W(y|x) [ln W(y|x) - ln q(y)], q = sum_x p_x W(y|x), in log domain (logsumexp),
+    0 ln 0 = 0 with finite gradients. Rows that sum to less than 1 get the missing mass t_x as one
+    overflow output, as in :func:`blahut_arimoto`, so at the optimal law this equals its ``capacity``.
+    By the envelope theorem dC/dtheta = dI(p*, W(theta))/dtheta with p* held fixed.
+    """
+    p = jnp.asarray(input_distribution, dtype=jnp.float64)
+    log_w = jnp.asarray(log_transition, dtype=jnp.float64)
+    tail = -jnp.expm1(jnp.minimum(logsumexp(log_w, axis=1), 0.0))
+    log_tail = jnp.log(jnp.maximum(tail, 1e-300))
+    log_w = jnp.concatenate([log_w, jnp.where(tail > 0, log_tail, -jnp.inf)[:, None]], axis=1)
+    finite = jnp.isfinite(log_w)
+    safe = jnp.where(finite, log_w, 0.0)
+    log_p = jnp.log(jnp.where(p > 0, p, 1.0))
+    log_q = logsumexp(jnp.where(finite & (p[:, None] > 0), log_p[:, None] + safe, -jnp.inf), axis=0)
+    log_q = jnp.where(jnp.isfinite(log_q), log_q, 0.0)
+    w = jnp.where(finite, jnp.exp(safe), 0.0)
+    terms = jnp.where(finite, w * (safe - log_q[None, :]), 0.0)
+    return jnp.dot(p, jnp.sum(terms, axis=1)) / LN2
