@@ -8,12 +8,14 @@ Public names:
     DETECTORS                 name -> detector: zero_forcing, symbol_ml, threshold, viterbi, decision_feedback
     detector_performance      simulate one detector -> DetectorResult (SER, BER with Wilson intervals, rate)
     DetectorResult            its result type
+    CLOSED_FORMS              name -> exact error rate where one exists (threshold without ISI)
     DetectionProblem, make_problem, simulate, slot_means   the channel model the detectors share
     map_threshold, threshold_error, threshold_error_rate   on-off keying: MAP threshold and closed-form error
     wilson_interval, confusion_information                 the statistics used in the report
 """
 
 from capacity.schemes.detectors.performance import (
+    CLOSED_FORMS,
     DetectorResult,
     confusion_information,
     detector_performance,
@@ -24,6 +26,7 @@ from capacity.schemes.detectors.table import DETECTORS
 from capacity.schemes.detectors.threshold import map_threshold, threshold_error, threshold_error_rate
 
 __all__ = [
+    "CLOSED_FORMS",
     "DETECTORS",
     "DetectionProblem",
     "DetectorResult",

@@ -30,6 +30,9 @@ from capacity.schemes.detectors.problem import draw_preamble, make_problem, simu
 from capacity.schemes.detectors.table import DETECTORS
 from capacity.schemes.detectors.threshold import threshold_error_rate
 
+CLOSED_FORMS = {"threshold": threshold_error_rate}
+"""Detector name -> exact error rate on an ISI-free problem: ``f(problem) -> (threshold, symbol error rate)``."""
+
 Z95 = 1.959963984540054  # two-sided 95 % standard normal quantile (scipy.stats.norm.ppf(0.975))
 
 
@@ -133,10 +136,10 @@ def detector_performance(detector_name: str, hits, background, alphabet: Alphabe
     ber = float(bit_errors.sum()) / (n * n_bits)
     rate, rate_se, bias = confusion_information(confusion)
 
-    closed = None
-    note = ""
-    if detector_name == "threshold" and (problem.memory == 0 or not np.any(problem.hits[:, :, 1:] > 0)):
-        tau, closed = threshold_error_rate(problem)
+    closed, note = None, ""
+    exact = CLOSED_FORMS.get(detector_name)
+    if exact is not None and not np.any(problem.hits[:, :, 1:] > 0):
+        tau, closed = exact(problem)
         note = f"; closed-form SER {closed:.6g} at threshold {tau:g} (Poisson tails)"
     message = (f"{detector_name}: {errors} symbol errors in {n} symbols (seed {seed}, S = {n_s}, L = "
                f"{problem.memory}, {'MAP' if prior else 'ML'} decisions); rate is the plug-in I(X; X-hat), "
