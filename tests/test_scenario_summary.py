@@ -165,7 +165,20 @@ def test_format_summary_text():
     assert "µm" in lines[3] and "peak ms" in lines[3]
     row = next(x for x in lines if x.startswith("S -> near"))
     # distance 15 um, gap 10 um, capture 1/3, peak 1e-10/(6 D) = 209.9 ms, 1.05 slots (closed forms above)
-    assert row.split()[3:] == ["absorbing", "15", "10", "0.3333", "-", "209.9", "1.05"]
+    assert row.split()[3:] == ["absorbing", "15", "10", "0.3333", "209.9", "1.05"]
+    assert "peak fraction" not in text  # no passive receiver
     assert any(x.startswith("near - far") and x.split()[-2:] == ["20", "10"] for x in lines)
     assert lines[-1] == "warnings: none"
     assert np.isfinite(summarise(s)["pairs"][1]["peak_time"])
+
+
+def test_format_summary_mixed_kinds():
+    text = format_summary(summarise(layout(kind2="passive")))
+    near = next(x for x in text.splitlines() if x.startswith("S -> near"))
+    far = next(x for x in text.splitlines() if x.startswith("S -> far"))
+    t, v = passive_peak(25 * UM, 5 * UM, D_BASE)
+    assert "lone capture" in text and "peak fraction" in text
+    # near: absorbing, capture 1/3 (Yilmaz et al. 2014), no fraction; far: passive, no capture
+    assert near.split()[3:7] == ["absorbing", "15", "10", "0.3333"] and near.split()[7] == "-"
+    assert far.split()[3:8] == ["passive", "25", "20", "-", format(v, ".4g")]
+    assert far.split()[8] == format(t * 1e3, ".4g")

@@ -147,7 +147,11 @@ def _num(x, scale=1.0, fmt=".4g") -> str:
 
 
 def format_summary(d: dict) -> str:
-    """A compact text rendering of :func:`summarise` output (lengths in µm, times in ms)."""
+    """A compact text rendering of :func:`summarise` output (lengths in µm, times in ms).
+
+    The "lone capture" column (absorbing pairs) and the "peak fraction" column (passive pairs: the largest
+    expected fraction inside) are left out when no pair has a value for them.
+    """
     out = [
         f"scenario: {d['name']}",
         f"{d['n_emitters']} emitter(s), {d['n_receivers']} receiver(s); D = {d['diffusion'] * 1e12:.4g} µm²/s, "
@@ -167,9 +171,12 @@ def format_summary(d: dict) -> str:
         ]
         for p in d["pairs"]
     ]
-    out += _table(
-        ["pair", "kind", "distance µm", "gap µm", "lone capture", "peak fraction", "peak ms", "peak slots"], rows
-    )
+    header = ["pair", "kind", "distance µm", "gap µm", "lone capture", "peak fraction", "peak ms", "peak slots"]
+    for col in (5, 4):  # drop the capture / fraction column when no pair has one (all absorbing or all passive)
+        if all(r[col] == "-" for r in rows):
+            header.pop(col)
+            rows = [r[:col] + r[col + 1 :] for r in rows]
+    out += _table(header, rows)
     if d["receiver_gaps"]:
         out.append("")
         rows = [
