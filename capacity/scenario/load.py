@@ -148,9 +148,8 @@ def _suggest(word: str, options) -> str:
 def _known(table: dict, allowed, where: str, prefix: str) -> None:
     for key in table:
         if key not in allowed:
-            raise InputError(
-                prefix + str(key), table[key], f'unknown key "{key}" in {where}', _suggest(key, allowed)
-            )
+            shown = "{...}" if isinstance(table[key], (dict, list)) else table[key]
+            raise InputError(prefix + str(key), shown, f'unknown key "{key}" in {where}', _suggest(key, allowed))
 
 
 def _require(table: dict, key: str, prefix: str, fix: str):
