@@ -14,7 +14,7 @@ the known preamble (the start state) and leaving the final state free (the block
 State encoding: state = Σ_{m=1..L} s_{k−m} S^(m−1) (the latest symbol is the least significant digit), so the
 successor of p under symbol s is (p·S + s) mod S^L and the predecessors of ns are ns // S + a·S^(L−1), a = 0..S−1.
 The forward pass and the traceback are ``jax.lax.scan`` loops (jit-compiled, static shapes). Memory: n·S^L
-survivor digits (int16).
+survivor digits (int16); time grows as n·S^(L+1)·R.
 """
 
 from __future__ import annotations
@@ -30,19 +30,23 @@ from capacity.schemes.detectors.symbol_ml import symbol_ml
 MAX_STATES = 4096
 """Largest trellis (S^L states) the detector accepts."""
 
+MAX_BRANCHES = 65536
+"""Largest number of branches per slot (S^(L+1)); at that size 20 000 slots take ~15 s on one CPU core."""
 
-def trellis(problem: DetectionProblem) -> tuple[np.ndarray, np.ndarray, np.ndarray, int]:
-    """Trellis tables for L >= 1.
 
-    Returns (pred (N, S) int64: predecessor of state ns through oldest digit a; sym (N,) int64: the symbol that
-    leads into ns; means (N, S, R): branch mean counts for (ns, a); start: the preamble's state index), N = S^L.
+def trellis(problem: DetectionProblem) -> tuple[np.ndarray, int]:
+    """Branch means of the trellis (L >= 1).
+
+    Returns (means, start): means (N, S, R) with N = S^L, means[ns, a] = mean counts of the branch that enters
+    state ns from its predecessor p = ns // S + a·S^(L−1) (a = the oldest symbol, which leaves the memory) with the
+    symbol ns mod S; start = state index of the known preamble.
     """
     n_s, big_l = problem.size, problem.memory
     n_states = n_s ** big_l
-    if n_states > MAX_STATES:
+    if n_states > MAX_STATES or n_states * n_s > MAX_BRANCHES:
         raise InputError("detector", "viterbi",
-                         f"the trellis would have S^L = {n_s}^{big_l} = {n_states} states "
-                         f"(more than {MAX_STATES})",
+                         f"the trellis would have S^L = {n_s}^{big_l} = {n_states} states and {n_states * n_s} "
+                         f"branches per slot (limits {MAX_STATES} and {MAX_BRANCHES})",
                          "use decision_feedback, or shorten the memory (fewer lags) or the alphabet")
     lm = lag_means(problem)  # (L+1, S, R)
     states = np.arange(n_states, dtype=np.int64)
@@ -50,34 +54,40 @@ def trellis(problem: DetectionProblem) -> tuple[np.ndarray, np.ndarray, np.ndarr
     past = problem.offset[None, :] + sum(lm[m][digits[:, m - 1]] for m in range(1, big_l + 1))  # (N, R)
     branch = past[:, None, :] + lm[0][None, :, :]  # (p, s, R)
     pred = (states // n_s)[:, None] + np.arange(n_s, dtype=np.int64)[None, :] * n_s ** (big_l - 1)  # (N, S)
-    sym = states % n_s
-    means = branch[pred, sym[:, None], :]  # (ns, a, R)
+    means = branch[pred, (states % n_s)[:, None], :]  # (ns, a, R)
     start = int(sum(int(problem.preamble[big_l - m]) * n_s ** (m - 1) for m in range(1, big_l + 1)))
-    return pred, sym, means, start
+    return means, start
 
 
 @jax.jit
-def _viterbi_core(y, start_metric, pred, sym, means, log_prior):
-    """Forward scan + traceback. y (n, R); start_metric (N,); pred (N, S); sym (N,); means (N, S, R);
-    log_prior (S,). Returns decisions (n,) int64."""
-    cost = means.sum(-1) - log_prior[sym][:, None]  # (N, S)
+def _viterbi_core(y, start_metric, means, log_prior):
+    """Forward scan + traceback. y (n, R); start_metric (N,); means (N, S, R) as from :func:`trellis`;
+    log_prior (S,). Returns decisions (n,) int64.
+
+    With Q = S^(L−1), state ns = q·S + s and its predecessors p = a·Q + q, so the candidate metrics are the
+    broadcast metric.reshape(S, Q).T[q, None, a] + branch[q, s, a] (no gather), maximised over a.
+    """
+    n_states, n_s, n_r = means.shape
+    q = n_states // n_s
+    cost = (means.sum(-1) - jnp.tile(log_prior, q)[:, None]).reshape(q, n_s, n_s)  # μ summed − ln π_s
     # ln μ with μ = 0 replaced by -1e300: then y·ln μ is 0 for y = 0 (0·ln 0 = 0) and hugely negative for y > 0
-    # (an impossible branch), without the NaN that 0·(−inf) would give inside the matrix product.
-    log_means = jnp.where(means > 0, jnp.log(jnp.where(means > 0, means, 1.0)), -1e300)  # (N, S, R)
+    # (an impossible branch), without the NaN that 0·(−inf) would give inside the contraction.
+    log_means = jnp.where(means > 0, jnp.log(jnp.where(means > 0, means, 1.0)), -1e300)
+    log_means = jnp.moveaxis(log_means, -1, 0).reshape(n_r, q, n_s, n_s)  # (R, q, s, a)
 
     def forward(metric, yk):
-        branch = log_means @ yk - cost  # (N, S): Σ_j y_j ln μ_j − μ_j + ln π
-        cand = metric[pred] + branch
-        best = jnp.max(cand, axis=1)
+        branch = jnp.tensordot(yk, log_means, 1) - cost  # (q, s, a): Σ_j y_j ln μ_j − μ_j + ln π_s
+        cand = metric.reshape(n_s, q).T[:, None, :] + branch
+        best = jnp.max(cand, axis=-1).reshape(n_states)
         top = jnp.max(best)
         best = best - jnp.where(jnp.isfinite(top), top, 0.0)
-        return best, jnp.argmax(cand, axis=1).astype(jnp.int16)
+        return best, jnp.argmax(cand, axis=-1).reshape(n_states).astype(jnp.int16)
 
     final, back = jax.lax.scan(forward, start_metric, y)
 
     def traceback(state, back_k):
-        prev = pred[state, back_k[state].astype(jnp.int64)]
-        return prev, sym[state]
+        prev = state // n_s + back_k[state].astype(jnp.int64) * q
+        return prev, state % n_s
 
     _, decisions = jax.lax.scan(traceback, jnp.argmax(final).astype(jnp.int64), back, reverse=True)
     return decisions
@@ -91,9 +101,9 @@ def viterbi(counts: np.ndarray, problem: DetectionProblem) -> np.ndarray:
     y = check_counts(counts, problem)
     if problem.memory == 0:
         return symbol_ml(y, problem)
-    pred, sym, means, start = trellis(problem)
-    start_metric = np.full(pred.shape[0], -np.inf)
+    means, start = trellis(problem)
+    start_metric = np.full(means.shape[0], -np.inf)
     start_metric[start] = 0.0
-    out = _viterbi_core(jnp.asarray(y), jnp.asarray(start_metric), jnp.asarray(pred), jnp.asarray(sym),
-                        jnp.asarray(means), jnp.asarray(problem.log_prior))
+    out = _viterbi_core(jnp.asarray(y), jnp.asarray(start_metric), jnp.asarray(means),
+                        jnp.asarray(problem.log_prior))
     return np.asarray(out, dtype=np.int64)
