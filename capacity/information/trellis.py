@@ -172,34 +172,62 @@ def poisson_log_branch(mu_flat, mu_sum, N: int, S: int):
 
 
 # ----------------------------------------------------------------------------------------------- simulation
-@partial(jax.jit, static_argnames=("n", "H", "m"))
-def simulate(key, log_src, log_src_prior, sym_c, hits_c, base, *, n: int, H: int, m: int):
-    """Draw ``H`` symbols of history and ``n`` symbols, then the Poisson counts of the full channel.
+@jax.jit
+def _poisson_flat(key, lam):
+    return jax.random.poisson(key, lam, shape=lam.shape).astype(jnp.float64)
 
-    log_src (S^m, S) ln source law; log_src_prior (S^m,) its stationary state law; sym_c (S, E); hits_c
-    (E, R, L+1) with L <= H; base (R,). Returns (x (H+n,) int, y (n, R) float, mean (n, R) float).
+
+def poisson_counts(key, mean) -> jnp.ndarray:
+    """Independent Poisson counts with the given means (any shape), drawn with ``jax.random.poisson``.
+
+    The means are flattened and padded to a power-of-two length so the (slow to compile) sampler is compiled
+    once per size bucket rather than once per shape.
     """
-    k_init, k_src, k_y = jax.random.split(key, 3)
+    mean = jnp.asarray(mean, dtype=jnp.float64)
+    size = mean.size
+    bucket = max(1024, 1 << (size - 1).bit_length())
+    lam = jnp.zeros(bucket).at[:size].set(mean.reshape(-1))
+    return _poisson_flat(key, lam)[:size].reshape(mean.shape)
+
+
+@partial(jax.jit, static_argnames=("n", "H", "m"))
+def _symbols_and_means(keys, log_src, log_src_prior, sym_c, hits_c, base, *, n: int, H: int, m: int):
+    """Per run (leading axis of ``keys``): H + n symbols (stationary source) and the full channel's means."""
     S = log_src.shape[1]
     L = hits_c.shape[2] - 1
-    if m == 0:
-        x = jax.random.categorical(k_src, log_src[0], shape=(H + n,))
-    else:
-        s0 = jax.random.categorical(k_init, log_src_prior)
-        init = (s0 // (S ** jnp.arange(m))) % S  # newest first
-        keys = jax.random.split(k_src, H + n - m)
 
-        def draw(state, kk):
-            s = jax.random.categorical(kk, log_src[state])
-            return s + S * (state % (S ** (m - 1))), s
+    def one(key):
+        k_init, k_src = jax.random.split(key)
+        if m == 0:
+            x = jax.random.categorical(k_src, log_src[0], shape=(H + n,))
+        else:
+            s0 = jax.random.categorical(k_init, log_src_prior)
+            init = (s0 // (S ** jnp.arange(m))) % S  # newest first
 
-        _, rest = lax.scan(draw, s0, keys)
-        x = jnp.concatenate([init[::-1], rest])
-    X = sym_c[x]  # (H+n, E)
-    idx = H + jnp.arange(n)[:, None] - jnp.arange(L + 1)[None, :]
-    mean = base[None, :] + jnp.einsum("nle,erl->nr", X[idx], hits_c)
-    y = jax.random.poisson(k_y, mean, shape=mean.shape).astype(jnp.float64)
-    return x, y, mean
+            def draw(state, kk):
+                s = jax.random.categorical(kk, log_src[state])
+                return s + S * (state % (S ** (m - 1))), s
+
+            _, rest = lax.scan(draw, s0, jax.random.split(k_src, H + n - m))
+            x = jnp.concatenate([init[::-1], rest])
+        X = sym_c[x]  # (H+n, E)
+        idx = H + jnp.arange(n)[:, None] - jnp.arange(L + 1)[None, :]
+        return x, base[None, :] + jnp.einsum("nle,erl->nr", X[idx], hits_c)
+
+    return jax.vmap(one)(keys)
+
+
+def simulate(key, log_src, log_src_prior, sym, hits, base, *, n: int, H: int, m: int, runs: int):
+    """Draw ``runs`` independent stretches of ``H`` history symbols plus ``n`` symbols, and their counts.
+
+    log_src (S^m, S) ln source law (m = 0: i.i.d.); log_src_prior (S^m,) its stationary state law; sym (S, E);
+    hits (E, R, L+1) with L <= H; base (R,). Returns x (runs, H+n) ints, y (runs, n, R) counts as floats and
+    mean (runs, n, R). The same key gives the same draws whatever the receiver model used afterwards.
+    """
+    k_sym, k_y = jax.random.split(key)
+    x, mean = _symbols_and_means(jax.random.split(k_sym, runs), jnp.asarray(log_src), jnp.asarray(log_src_prior),
+                                 jnp.asarray(sym), jnp.asarray(hits), jnp.asarray(base), n=n, H=H, m=m)
+    return x, poisson_counts(k_y, mean), mean
 
 
 def path_states(x, H: int, n: int, M: int, S: int):
@@ -210,20 +238,22 @@ def path_states(x, H: int, n: int, M: int, S: int):
     return (x[idx] * (S ** jnp.arange(M))[None, :]).sum(axis=1)
 
 
-@partial(jax.jit, static_argnames=("n", "H", "M", "m"))
-def _run(key, log_src, log_src_prior, sym_c, hits_c, base, mu_aux, log_trans, log_prior, *, n, H, M, m):
-    """One run: per-run sums (ln q(y|x) - ln q(y), ln W(y|x) - ln q(y)) in nats."""
-    S = sym_c.shape[0]
-    N = S**M
-    x, y, mean = simulate(key, log_src, log_src_prior, sym_c, hits_c, base, n=n, H=H, m=m)
+@partial(jax.jit, static_argnames=("H", "M"))
+def _run_sums(x, y, mean, mu_aux, log_trans, log_prior, *, H, M):
+    """Per run: (ln q(y|x) - ln q(y), ln W(y|x) - ln q(y)) in nats; x (runs, H+n), y and mean (runs, n, R)."""
+    N, S = log_trans.shape
+    n = y.shape[1]
     mu_flat = mu_aux.reshape(N * S, -1)
-    log_lams = forward_log_normalisers(poisson_log_branch(mu_flat, mu_flat.sum(axis=1), N, S),
-                                       log_trans, log_prior, y, S)
-    st = path_states(x, H, n, M, S)
-    mu_path = mu_aux[st, x[H:]]
-    log_q_path = (xlogy(y, mu_path) - mu_path).sum()
-    log_w_path = (xlogy(y, mean) - mean).sum()
-    return log_q_path - log_lams.sum(), log_w_path - log_lams.sum()
+    branch = poisson_log_branch(mu_flat, mu_flat.sum(axis=1), N, S)
+
+    def one(xr, yr, mr):
+        log_lams = forward_log_normalisers(branch, log_trans, log_prior, yr, S)
+        mu_path = mu_aux[path_states(xr, H, n, M, S), xr[H:]]
+        log_q_path = (xlogy(yr, mu_path) - mu_path).sum()
+        log_w_path = (xlogy(yr, mr) - mr).sum()
+        return log_q_path - log_lams.sum(), log_w_path - log_lams.sum()
+
+    return jax.vmap(one)(x, y, mean)
 
 
 def trellis_rates(hits, background, symbols, input_law, *, interference=None, n_symbols=20_000, n_runs=8,
@@ -263,12 +293,11 @@ def trellis_rates(hits, background, symbols, input_law, *, interference=None, n_
     tail = np.einsum("e,erl->r", marg @ sym, h[:, :, kept + 1:]) if kept < L else np.zeros(h.shape[1])
     mu_aux = branch_means(h[:, :, : kept + 1], base + tail, sym, M)
     H = max(L, M)
-    keys = jax.random.split(jax.random.PRNGKey(int(seed)), int(n_runs))
     with np.errstate(divide="ignore"):
-        args = (jnp.log(law), jnp.log(src_prior), jnp.asarray(sym), jnp.asarray(h), jnp.asarray(base),
-                jnp.asarray(mu_aux), jnp.log(trans), jnp.log(prior))
-    run = jax.vmap(lambda k: _run(k, *args, n=int(n_symbols), H=H, M=M, m=m))
-    lo, up = run(keys)
+        x, y, mean = simulate(jax.random.PRNGKey(int(seed)), np.log(law), np.log(src_prior), sym, h, base,
+                              n=int(n_symbols), H=H, m=m, runs=int(n_runs))
+        lo, up = _run_sums(x, y, mean, jnp.asarray(mu_aux), jnp.asarray(np.log(trans)),
+                           jnp.asarray(np.log(prior)), H=H, M=M)
     scale = 1.0 / (int(n_symbols) * LN2)
     return {"lower": np.asarray(lo) * scale, "upper": np.asarray(up) * scale, "kept": kept, "memory": L,
             "states": S**M, "exact": kept == L}
