@@ -58,7 +58,8 @@ def make_problem(hits, background, alphabet: Alphabet, input_law, *, interferenc
     hits : (E, R, L+1) hit probabilities (dimensionless, in [0, 1]); E must equal ``alphabet.emitters``.
     background : (R,) mean background counts per slot (>= 0).
     alphabet : the signalling alphabet, symbols (S, E) in molecules.
-    input_law : (S,) symbol probabilities (>= 0, summing to 1 within 1e-9; renormalised).
+    input_law : (S,) symbol probabilities (>= 0, summing to 1 within 1e-9; renormalised; entries above −1e-12
+        are taken as round-off and set to 0).
     interference : optional (R,) constant mean interference counts per slot (>= 0), e.g. the residual tail.
     preamble : (L,) known symbol indices before slot 0; default: all symbol 0 (use :func:`draw_preamble` for a
         random one).
@@ -81,6 +82,7 @@ def make_problem(hits, background, alphabet: Alphabet, input_law, *, interferenc
     if interference is not None:
         offset = offset + _nonneg_vector("interference", interference, n_r)
     law = np.asarray(input_law, dtype=float).reshape(-1)
+    law = np.where((law < 0) & (law > -1e-12), 0.0, law)  # round-off from an optimiser, not a real negative
     if law.shape != (symbols.shape[0],) or not np.all(np.isfinite(law)) or np.any(law < 0) \
             or abs(law.sum() - 1.0) > 1e-9:
         raise InputError("input_law", law.tolist() if law.size < 20 else law.shape,
