@@ -50,35 +50,29 @@ _GL_V, _GL_W = 0.5 * (_GL_NODES + 1.0), 0.5 * _GL_WEIGHTS  # nodes and weights o
 
 
 # ---------------------------------------------------------------------------------------------- Phi, Phic
-def _phi_value(x, w):
-    """Phi(x, w) of the module docstring, without overflow (value only)."""
+def _core(x, w):
+    """Phi, Phic and beta at (x, w), sharing one set of special-function calls (values only).
+
+    Phi without overflow; Phic = exp(-2 x sqrt(w)) - Phi by a form without cancellation in each region
+    (erf(x) when w = 0); beta = [erfcx(x-s) - erfcx(x+s)] exp(-x^2-w) / (2 s) >= 0, s = sqrt(w), smooth and even
+    in s (Taylor series below s = 1e-3, erfcx derivatives from y' = 2xy - 2/sqrt(pi), y^(n+1) = 2x y^(n) + 2n y^(n-1)).
+    """
     s = jnp.sqrt(w)
     e = jnp.exp(-x * x - w)
+    eq = jnp.exp(-2.0 * x * s)
     ge = x >= s
-    early = 0.5 * e * (erfcx(jnp.where(ge, x - s, 0.0)) + erfcx(x + s))
-    late = jnp.exp(-2.0 * x * s) - 0.5 * e * (erfcx(jnp.where(ge, 0.0, s - x)) - erfcx(s + x))
-    return jnp.where(w == 0.0, erfc(x), jnp.where(ge, early, late))
-
-
-def _phic_value(x, w):
-    """Phic = exp(-2 x sqrt(w)) - Phi, by a form without cancellation in each region (value only)."""
-    s = jnp.sqrt(w)
-    e = jnp.exp(-x * x - w)
-    below = x < s
+    ym = erfcx(jnp.abs(x - s))
+    yp = erfcx(x + s)
+    zero = w == 0.0
+    phi = jnp.where(zero, erfc(x), jnp.where(ge, 0.5 * e * (ym + yp), eq - 0.5 * e * (ym - yp)))
     small = x < 0.5
-    b1 = 0.5 * e * (erfcx(jnp.where(below, s - x, 0.0)) - erfcx(s + x))
     xs, ss = jnp.where(small, x, 0.0), jnp.where(small, s, 0.0)
-    b2 = -jnp.sinh(2.0 * xs * ss) + 0.5 * (jnp.exp(-2.0 * xs * ss) * erf(xs - ss) + jnp.exp(2.0 * xs * ss) * erf(xs + ss))
-    b3 = jnp.exp(-2.0 * x * s) - 0.5 * e * (erfcx(jnp.where(below, 0.0, x - s)) + erfcx(x + s))
-    general = jnp.where(below, b1, jnp.where(small, b2, b3))
-    return jnp.where(w == 0.0, erf(x), general)
-
-
-def _beta(x, w):
-    """[erfcx(x-s) - erfcx(x+s)] exp(-x^2-w) / (2 s), s = sqrt(w) >= 0 (>= 0, smooth, even in s)."""
-    s = jnp.sqrt(w)
-    e = jnp.exp(-x * x - w)
-    # Taylor series in s: erfcx derivatives from y' = 2 x y - 2/sqrt(pi), y^(n+1) = 2 x y^(n) + 2 n y^(n-1)
+    xss = 2.0 * xs * ss
+    b2 = -jnp.sinh(xss) + 0.5 * (jnp.exp(-xss) * erf(xs - ss) + jnp.exp(xss) * erf(xs + ss))
+    phic = jnp.where(zero, erf(x), jnp.where(ge, jnp.where(small, b2, eq - 0.5 * e * (ym + yp)), 0.5 * e * (ym - yp)))
+    big = s >= _SIGMA_SERIES
+    bb = jnp.where(ge, e * (ym - yp), 2.0 * eq - e * (ym + yp))
+    direct = bb / (2.0 * jnp.where(big, s, 1.0))
     y0 = erfcx(x)
     y1 = 2.0 * x * y0 - _TWO_OVER_SQRT_PI
     y2 = 2.0 * x * y1 + 2.0 * y0
@@ -86,65 +80,32 @@ def _beta(x, w):
     y4 = 2.0 * x * y3 + 6.0 * y2
     y5 = 2.0 * x * y4 + 8.0 * y3
     series = -e * (y1 + w * y3 / 6.0 + w * w * y5 / 120.0)
-    big = s >= _SIGMA_SERIES
-    sb = jnp.where(big, s, 1.0)
-    ge = x >= sb
-    b_early = e * (erfcx(jnp.where(ge, x - sb, 0.0)) - erfcx(x + sb))
-    b_late = 2.0 * jnp.exp(-2.0 * x * sb) - e * (erfcx(jnp.where(ge, 0.0, sb - x)) + erfcx(sb + x))
-    direct = jnp.where(ge, b_early, b_late) / (2.0 * sb)
-    return jnp.where(big, direct, series)
+    beta = jnp.where(big, direct, series)
+    return phi, phic, beta
 
 
-def _phi_partials(x, w):
-    beta = _beta(x, w)
-    dx = -2.0 * w * beta - _TWO_OVER_SQRT_PI * jnp.exp(-x * x - w)
-    dw = -x * beta
-    return dx, dw
+def _partials(x, w, beta):
+    """dPhi/dx and dPhi/dw (module docstring)."""
+    return -2.0 * w * beta - _TWO_OVER_SQRT_PI * jnp.exp(-x * x - w), -x * beta
 
 
 @jax.custom_jvp
-def _phi(x, w):
-    return _phi_value(x, w)
-
-
-@_phi.defjvp
-def _phi_jvp(primals, tangents):
-    x, w = primals
-    xd, wd = tangents
-    dx, dw = _phi_partials(x, w)
-    return _phi_value(x, w), dx * xd + dw * wd
-
-
-@jax.custom_jvp
-def _phic(x, w, q):
-    """Phic(x, w); q = 2 x sqrt(w) is passed separately so that only q carries the sqrt(k) singularity."""
+def _phi_pair(x, w, q):
+    """(Phi, Phic) at (x, w); q = 2 x sqrt(w) is passed separately so that only q carries the sqrt(k) singularity
+    of the eventual capture exp(-q) (Phic's derivative); Phi itself is smooth in w."""
     del q
-    return _phic_value(x, w)
+    phi, phic, _ = _core(x, w)
+    return phi, phic
 
 
-@_phic.defjvp
-def _phic_jvp(primals, tangents):
+@_phi_pair.defjvp
+def _phi_pair_jvp(primals, tangents):
     x, w, q = primals
     xd, wd, qd = tangents
-    dx, dw = _phi_partials(x, w)
-    return _phic_value(x, w), -jnp.exp(-q) * qd - dx * xd - dw * wd
-
-
-@jax.custom_jvp
-def _slot(x1, w1, x2, w2):
-    """Phi(x2, w2) - Phi(x1, w1) for t1 < t2: the difference of Phi early on, of Phic late (no cancellation)."""
-    p1, p2 = _phi_value(x1, w1), _phi_value(x2, w2)
-    c1, c2 = _phic_value(x1, w1), _phic_value(x2, w2)
-    return jnp.where(p2 <= c2, p2 - p1, c1 - c2)
-
-
-@_slot.defjvp
-def _slot_jvp(primals, tangents):
-    x1, w1, x2, w2 = primals
-    x1d, w1d, x2d, w2d = tangents
-    a1, b1 = _phi_partials(x1, w1)
-    a2, b2 = _phi_partials(x2, w2)
-    return _slot(x1, w1, x2, w2), a2 * x2d + b2 * w2d - a1 * x1d - b1 * w1d
+    phi, phic, beta = _core(x, w)
+    dx, dw = _partials(x, w, beta)
+    dphi = dx * xd + dw * wd
+    return (phi, phic), (dphi, -jnp.exp(-q) * qd - dphi)
 
 
 def _as_f64(*values):
@@ -159,11 +120,28 @@ def _x_w(t, gap, diffusion, degradation):
     return x, degradation * jnp.where(pos, t, 0.0)
 
 
+@jax.custom_jvp
+def _sqrt_rate(k):
+    """sqrt(k) for k >= 0 whose derivative at k = 0 is that at k = 1e-300 (~5e149) instead of +inf.
+
+    Only the eventual capture and the tails depend on sqrt(k) non-smoothly; the true derivative at k = 0 is
+    infinite. A huge finite value keeps zero tangents and zero cotangents from turning into NaN (0 * inf).
+    """
+    return jnp.sqrt(k)
+
+
+@_sqrt_rate.defjvp
+def _sqrt_rate_jvp(primals, tangents):
+    (k,), (kd,) = primals, tangents
+    return jnp.sqrt(k), 0.5 / jnp.sqrt(jnp.maximum(k, 1e-300)) * kd
+
+
 def _q(gap, diffusion, degradation):
-    return gap * jnp.sqrt(degradation) / jnp.sqrt(diffusion)
+    return gap * _sqrt_rate(degradation) / jnp.sqrt(diffusion)
 
 
 # ---------------------------------------------------------------------------------------------- absorbing
+@jax.jit
 def absorbing_cdf(t, radius, gap, diffusion, degradation=0.0):
     """Fraction of the released molecules absorbed by a lone absorbing sphere by time ``t``.
 
@@ -174,9 +152,11 @@ def absorbing_cdf(t, radius, gap, diffusion, degradation=0.0):
     """
     t, radius, gap, diffusion, degradation = _as_f64(t, radius, gap, diffusion, degradation)
     x, w = _x_w(t, gap, diffusion, degradation)
-    return jnp.where(t > 0.0, radius / (radius + gap) * _phi(x, w), 0.0)
+    phi, _ = _phi_pair(x, w, jnp.zeros_like(x))  # q only enters Phic's derivative
+    return jnp.where(t > 0.0, radius / (radius + gap) * phi, 0.0)
 
 
+@jax.jit
 def absorbing_survival(t, radius, gap, diffusion, degradation=0.0):
     """Fraction absorbed AFTER ``t``: eventual capture minus :func:`absorbing_cdf`, computed without cancellation.
 
@@ -184,9 +164,11 @@ def absorbing_survival(t, radius, gap, diffusion, degradation=0.0):
     """
     t, radius, gap, diffusion, degradation = _as_f64(t, radius, gap, diffusion, degradation)
     x, w = _x_w(t, gap, diffusion, degradation)
-    return radius / (radius + gap) * _phic(x, w, _q(gap, diffusion, degradation))
+    _, phic = _phi_pair(x, w, _q(gap, diffusion, degradation))
+    return radius / (radius + gap) * phic
 
 
+@jax.jit
 def absorbing_density(t, radius, gap, diffusion, degradation=0.0):
     """Hitting-time density of a lone absorbing sphere, 1/s: ``r/(r+d) d/sqrt(4 pi D t^3) exp(-d^2/(4Dt) - k t)``.
 
@@ -200,6 +182,7 @@ def absorbing_density(t, radius, gap, diffusion, degradation=0.0):
     return jnp.where(pos, f, 0.0)
 
 
+@jax.jit
 def absorbing_total(radius, gap, diffusion, degradation=0.0):
     """Eventual capture probability ``r/(r+d) exp(-d sqrt(k/D))`` (Heren et al. 2015; r/(r+d) for k = 0).
 
@@ -232,6 +215,7 @@ def _passive_undegraded(t, radius, distance, diffusion):
     return jnp.where(use_series, series, exact)
 
 
+@jax.jit
 def passive_probability(t, radius, distance, diffusion, degradation=0.0):
     """Probability that a molecule released at time 0 is inside a passive sphere at time ``t``.
 
@@ -254,41 +238,49 @@ def passive_probability(t, radius, distance, diffusion, degradation=0.0):
     return jnp.where(pos, p, jnp.where(distance < radius, 1.0, 0.0))
 
 
-def _passive_tail(radius, distance, diffusion, degradation, symbol_interval, start, terms: int):
-    """sum_{j >= 0} P(start + j Ts): ``terms`` explicit terms, then Euler-Maclaurin for the rest.
-
-    Remainder from t_K = start + terms*Ts: (1/Ts) int_{t_K}^inf P + P(t_K)/2 - Ts P'(t_K)/12 + Ts^3 P'''/720, with
-    int P = int m + int (P - m); m(t) = c t^-1.5 exp(-b/t - k t) (c = V (4 pi D)^-1.5, b = (rho^2 + 3a^2/5)/(4D))
-    matches P to first order in 1/t and is integrated in closed form (c sqrt(pi/b) Phic(sqrt(b/t_K), k t_K)); the
-    correction int (P - m) (O(t^-2.5)) by 64-point Gauss-Legendre in v, t = t_K / v^2 (a smooth integrand).
-    Derivatives of P in the EM terms are those of m (their error is second order in b/t_K and Ts/t_K).
-    """
-    j = jnp.arange(terms, dtype=jnp.float64)
-    explicit = jnp.sum(passive_probability(start + j * symbol_interval, radius, distance, diffusion, degradation))
+def _passive_tail_times(start, symbol_interval, terms: int):
+    """Times at which :func:`_passive_tail` needs P: ``terms`` explicit samples, t_K, and the quadrature nodes."""
     tk = start + float(terms) * symbol_interval
-    vol = 4.0 / 3.0 * jnp.pi * radius**3
-    c = vol * (4.0 * jnp.pi * diffusion) ** -1.5
+    explicit = start + jnp.arange(terms, dtype=jnp.float64) * symbol_interval
+    return jnp.concatenate([explicit, tk[None], tk / jnp.asarray(_GL_V) ** 2])
+
+
+def _passive_model_point(radius, distance, diffusion, degradation, symbol_interval, start, terms: int):
+    """(x, w, q) at which :func:`_passive_tail` needs Phic: (sqrt(b/t_K), k t_K, 2 sqrt(b k)); also b (s)."""
+    tk = start + float(terms) * symbol_interval
+    b = (distance**2 + 0.6 * radius**2) / (4.0 * diffusion)
+    return jnp.sqrt(b / tk), degradation * tk, 2.0 * jnp.sqrt(b) * _sqrt_rate(degradation), b
+
+
+def _passive_tail(values, phic_model, radius, distance, diffusion, degradation, symbol_interval, start, terms: int):
+    """sum_{j >= 0} P(start + j Ts) from P at :func:`_passive_tail_times` (``values``) and ``phic_model`` =
+    Phic at :func:`_passive_model_point`.
+
+    ``terms`` explicit terms, then the Euler-Maclaurin remainder from t_K = start + terms*Ts:
+    (1/Ts) int_{t_K}^inf P + P(t_K)/2 - Ts P^(1)(t_K)/12 + Ts^3 P^(3)(t_K)/720, with int P = int m + int (P - m);
+    m(t) = c t^-1.5 exp(-b/t - k t) (c = V (4 pi D)^-1.5, b = (rho^2 + 3a^2/5)/(4D)) matches P to first order in
+    1/t and is integrated in closed form (c sqrt(pi/b) Phic(sqrt(b/t_K), k t_K), the absorbing-sphere integral);
+    the correction int (P - m) = O(t_K^-2.5) by 64-point Gauss-Legendre in v, t = t_K / v^2 (smooth integrand).
+    The derivatives in the EM terms are those of m (error second order in b/t_K, times Ts/t_K).
+    """
+    explicit, p_k, p_gl = values[:terms], values[terms], values[terms + 1:]
+    tk = start + float(terms) * symbol_interval
+    c = 4.0 / 3.0 * jnp.pi * radius**3 * (4.0 * jnp.pi * diffusion) ** -1.5
     b = (distance**2 + 0.6 * radius**2) / (4.0 * diffusion)
 
     def model(t):
         return c * t**-1.5 * jnp.exp(-b / t - degradation * t)
 
-    q = 2.0 * jnp.sqrt(b) * jnp.sqrt(degradation)
-    int_model = c * jnp.sqrt(jnp.pi / b) * _phic(jnp.sqrt(b / tk), degradation * tk, q)
+    int_model = c * jnp.sqrt(jnp.pi / b) * phic_model
     v = jnp.asarray(_GL_V)
-    tv = tk / v**2
-    corr = jnp.sum(jnp.asarray(_GL_W) * (passive_probability(tv, radius, distance, diffusion, degradation)
-                                           - model(tv)) * 2.0 * tk / v**3)
+    corr = jnp.sum(jnp.asarray(_GL_W) * (p_gl - model(tk / v**2)) * 2.0 * tk / v**3)
     m = model(tk)
-    h = -1.5 / tk + b / tk**2 - degradation  # m'/m
+    h = -1.5 / tk + b / tk**2 - degradation  # m'/m and its derivatives
     dh = 1.5 / tk**2 - 2.0 * b / tk**3
     ddh = -3.0 / tk**3 + 6.0 * b / tk**4
-    m1 = m * h
-    m3 = m * (h**3 + 3.0 * h * dh + ddh)
-    p_k = passive_probability(tk, radius, distance, diffusion, degradation)
-    remainder = ((int_model + corr) / symbol_interval + 0.5 * p_k - symbol_interval / 12.0 * m1
-                 + symbol_interval**3 / 720.0 * m3)
-    return explicit + remainder
+    remainder = ((int_model + corr) / symbol_interval + 0.5 * p_k - symbol_interval / 12.0 * m * h
+                 + symbol_interval**3 / 720.0 * m * (h**3 + 3.0 * h * dh + ddh))
+    return jnp.sum(explicit) + remainder
 
 
 # ---------------------------------------------------------------------------------------------- all pairs
@@ -296,18 +288,26 @@ def _pair_hits(emitter, centre, radius, passive, offset, diffusion, degradation,
     diff = emitter - centre
     sq = jnp.sum(diff * diff)
     rho = jnp.where(sq > 0.0, jnp.sqrt(jnp.where(sq > 0.0, sq, 1.0)), 0.0)
-    # absorbing: slot l covers [l Ts, (l+1) Ts)
+    # absorbing: slot l covers [l Ts, (l+1) Ts); passive: sampled at l Ts + offset
     gap = jnp.where(passive, radius, rho - radius)
     edges = jnp.arange(memory + 2, dtype=jnp.float64) * symbol_interval
     x, w = _x_w(edges, gap, diffusion, degradation)
+    start = edges[-1] + offset
+    xm, wm, qm, _ = _passive_model_point(radius, rho, diffusion, degradation, symbol_interval, start,
+                                         PASSIVE_TAIL_TERMS)
+    # one evaluation of Phi/Phic for the slot edges and the passive remainder's model integral
+    q = jnp.concatenate([jnp.broadcast_to(_q(gap, diffusion, degradation), x.shape), qm[None]])
+    phi, phic = _phi_pair(jnp.concatenate([x, xm[None]]), jnp.concatenate([w, wm[None]]), q)
     amp = radius / (radius + gap)
-    absorb = amp * _slot(x[:-1], w[:-1], x[1:], w[1:])
-    absorb_tail = amp * _phic(x[-1], w[-1], _q(gap, diffusion, degradation))
-    # passive: sampled at l Ts + offset
-    times = edges[:-1] + offset
-    samples = passive_probability(times, radius, rho, diffusion, degradation)
-    sample_tail = _passive_tail(radius, rho, diffusion, degradation, symbol_interval,
-                                edges[-1] + offset, PASSIVE_TAIL_TERMS)
+    p, c = phi[:-1], phic[:-1]
+    # difference of Phi early, of Phic late (no cancellation; the exp(-q) parts of the derivatives cancel exactly)
+    absorb = amp * jnp.where(p[1:] <= c[1:], p[1:] - p[:-1], c[:-1] - c[1:])
+    absorb_tail = amp * c[-1]
+    times = jnp.concatenate([edges[:-1] + offset, _passive_tail_times(start, symbol_interval, PASSIVE_TAIL_TERMS)])
+    values = passive_probability(times, radius, rho, diffusion, degradation)
+    samples = values[: memory + 1]
+    sample_tail = _passive_tail(values[memory + 1:], phic[-1], radius, rho, diffusion, degradation, symbol_interval,
+                                start, PASSIVE_TAIL_TERMS)
     return jnp.where(passive, samples, absorb), jnp.where(passive, sample_tail, absorb_tail)
 
 
