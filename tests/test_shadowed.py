@@ -1,0 +1,212 @@
+"""Checks of the shadowed (renewal) response model against references it does not share code with."""
+
+from __future__ import annotations
+
+import jax
+import jax.numpy as jnp
+import numpy as np
+import pytest
+from scipy.special import erfc, erfcx
+
+import capacity  # noqa: F401  (float64)
+from capacity.errors import InputError
+from capacity.physics.shadowed import _shadowed_core, shadowed_hits, validity_notes
+from tests.reference_images import image_split
+
+UM = 1e-6
+D = 79.4e-12
+
+
+def _scipy_lone_cdf(t, radius, gap, diffusion, k):
+    """Closed form of references.md (Yilmaz et al. 2014; degraded: Heren et al. 2015), written with scipy."""
+    t = np.asarray(t, dtype=float)
+    z = gap / np.sqrt(4 * diffusion * t)
+    if k == 0:
+        return radius / (radius + gap) * erfc(z)
+    s = np.sqrt(k * t)
+    x = gap * np.sqrt(k / diffusion)
+    return radius / (radius + gap) * 0.5 * (np.exp(-x) * erfc(z - s) + erfcx(z + s) * np.exp(-z * z - k * t))
+
+
+# --- reference series itself ---------------------------------------------------------------------------------
+
+@pytest.mark.parametrize(
+    "source, centres, expected",
+    [  # references.md, "Several absorbing spheres" [computed] values, a = 5 um each
+        ((0, 10, 0), [(15, 10, 0), (15, -10, 0)], (0.301104, 0.125563)),
+        ((0, 0, 0), [(15, 0, 0), (30, 0, 0)], (0.307920, 0.076189)),
+        ((0, 0, 0), [(15, 5.5, 0), (15, -5.5, 0)], (0.217983, 0.217983)),
+    ],
+)
+def test_image_series_reproduces_reference_sheet(source, centres, expected):
+    got = image_split(np.array(source) * UM, np.array(centres) * UM, [5 * UM, 5 * UM])
+    np.testing.assert_allclose(got, expected, atol=6e-7)  # references.md values are given to 6 digits
+
+
+def test_image_series_one_sphere_is_lone_limit():
+    # classical: a lone sphere captures a/rho eventually (references.md, Yilmaz et al. 2014 long-time limit)
+    got = image_split(np.zeros(3), np.array([[12 * UM, 0, 0]]), [4 * UM])
+    np.testing.assert_allclose(got, [4 / 12], rtol=1e-14)
+
+
+# --- one sphere: exact closed form -------------------------------------------------------------------------
+
+@pytest.mark.parametrize("k", [0.0, 1.0, 10.0])
+def test_one_sphere_equals_lone_closed_form(k):
+    ts, memory = 0.1, 12
+    centre = np.array([[3 * UM, 9 * UM, -2 * UM]])
+    emitter = np.array([[-1 * UM, 1 * UM, 0.5 * UM]])
+    hits, tail = shadowed_hits(emitter, centre, np.array([5 * UM]), D, k, ts, memory, substeps=7)
+    gap = np.linalg.norm(emitter[0] - centre[0]) - 5 * UM
+    edges = ts * np.arange(memory + 2, dtype=float)
+    cdf = np.concatenate([[0.0], _scipy_lone_cdf(edges[1:], 5 * UM, gap, D, k)])
+    np.testing.assert_allclose(np.asarray(hits)[0, 0], np.diff(cdf), rtol=0, atol=1e-10)  # scipy closed form
+    limit = 5 * UM / (5 * UM + gap) * np.exp(-gap * np.sqrt(k / D))
+    np.testing.assert_allclose(np.asarray(tail)[0, 0], limit - cdf[-1], atol=1e-10)
+
+
+def test_one_sphere_reference_sheet_values():
+    # references.md base case [computed]: F(0.1) = 0.1047913, F(0.5) = 0.2873561 (k = 0); F(0.1) = 0.09871589 (k=1)
+    args = (np.zeros((1, 3)), np.array([[10 * UM, 0, 0]]), np.array([5 * UM]), D)
+    hits, _ = shadowed_hits(*args, 0.0, 0.1, 4)
+    np.testing.assert_allclose(np.cumsum(np.asarray(hits)[0, 0])[[0, 4]], [0.1047913, 0.2873561], rtol=2e-7)
+    hits, _ = shadowed_hits(*args, 1.0, 0.1, 0)
+    np.testing.assert_allclose(np.asarray(hits)[0, 0, 0], 0.09871589, rtol=2e-7)
+
+
+# --- steady state: Kelvin images ------------------------------------------------------------------------------
+
+STEADY_LAYOUTS = {  # name: (source um, centres um, radii um, relative tolerance reached)
+    "side_by_side": ((0, 10, 0), [(15, 10, 0), (15, -10, 0)], [5, 5], 0.005),
+    "one_behind": ((0, 0, 0), [(15, 0, 0), (30, 0, 0)], [5, 5], 0.025),
+    "close_pair": ((0, 0, 0), [(15, 5.5, 0), (15, -5.5, 0)], [5, 5], 0.03),
+    "unequal_offset": ((2, -1, 0), [(11, 3, 0), (19, -4, 2)], [3, 6], 0.03),
+}
+
+
+@pytest.mark.parametrize("name", list(STEADY_LAYOUTS))
+def test_eventual_split_against_kelvin_images(name):
+    source, centres, radii, rtol = STEADY_LAYOUTS[name]
+    e, c, r = np.array([source]) * UM, np.array(centres) * UM, np.array(radii, dtype=float) * UM
+    hits, tail = shadowed_hits(e, c, r, D, 0.0, 0.2, 2, substeps=10)
+    total = np.asarray(hits).sum(-1)[0] + np.asarray(tail)[0]
+    expected = image_split(e[0], c, r)  # independent image series (tests/reference_images.py)
+    np.testing.assert_allclose(total, expected, rtol=rtol)
+
+
+# --- physical sanity --------------------------------------------------------------------------------------------
+
+def _three_layout():
+    e = np.array([[0.0, 0, 0], [4.0, 20, 0]]) * UM
+    c = np.array([[12.0, 0, 0], [-3, 11, 0], [-4, -9, 5]]) * UM
+    r = np.array([4.0, 5, 3]) * UM
+    return e, c, r
+
+
+def test_shadowing_only_removes_and_permutation_invariant():
+    e, c, r = _three_layout()
+    hits, tail = shadowed_hits(e, c, r, 1e-10, 0.5, 0.2, 8, substeps=16)
+    hits, tail = np.asarray(hits), np.asarray(tail)
+    assert hits.min() > -1e-12 and tail.min() > -1e-12
+    lone = np.stack([np.asarray(shadowed_hits(e, c[j:j + 1], r[j:j + 1], 1e-10, 0.5, 0.2, 8)[0])[:, 0]
+                     for j in range(3)], axis=1)
+    # first passage with more absorbers can only come later or never (common practice: monotonicity)
+    assert np.all(np.cumsum(hits, -1) <= np.cumsum(lone, -1) + 1e-12)
+    assert np.all(hits.sum(-1) + tail <= 1.0)
+    perm = [2, 0, 1]
+    hp, tp = shadowed_hits(e, c[perm], r[perm], 1e-10, 0.5, 0.2, 8, substeps=16)
+    np.testing.assert_allclose(np.asarray(hp), hits[:, perm], atol=1e-13)
+    np.testing.assert_allclose(np.asarray(tp), tail[:, perm], atol=1e-13)
+
+
+def test_substep_convergence():
+    # the discretisation error falls as the fine step shrinks (style: convergence measured)
+    e, c, r = np.zeros((1, 3)), np.array([[12.0, 0, 0], [22, 2, 0]]) * UM, np.array([4.0, 4.0]) * UM
+    ref = np.asarray(shadowed_hits(e, c, r, 1e-10, 0.0, 0.2, 6, substeps=160)[0])
+    errs = [np.abs(np.asarray(shadowed_hits(e, c, r, 1e-10, 0.0, 0.2, 6, substeps=s)[0]) - ref).max()
+            for s in (10, 40)]
+    assert errs[1] < errs[0] and errs[1] < 2e-4
+
+
+# --- JAX: jit, no recompile, gradients --------------------------------------------------------------------------
+
+def test_jit_and_no_recompile():
+    e, c, r = _three_layout()
+    shadowed_hits(e, c, r, 1e-10, 0.0, 0.2, 5, substeps=8)
+    before = _shadowed_core._cache_size()
+    shadowed_hits(e + 1e-7, c * 1.01, r, 2e-10, 0.3, 0.25, 5, substeps=8)
+    assert _shadowed_core._cache_size() == before
+    jitted = jax.jit(lambda cc: shadowed_hits(e, cc, r, 1e-10, 0.0, 0.2, 5, substeps=8)[0])
+    np.testing.assert_allclose(jitted(c), shadowed_hits(e, c, r, 1e-10, 0.0, 0.2, 5, substeps=8)[0], atol=1e-15)
+
+
+def _functional(e, c, r, d, k, ts):
+    hits, tail = shadowed_hits(e, c, r, d, k, ts, 4, substeps=8)
+    weights = jnp.linspace(1.0, 2.0, 5)
+    return jnp.sum(hits * weights) + 0.3 * jnp.sum(tail)
+
+
+@pytest.mark.parametrize(
+    "which, index, step",
+    [("c", (1, 0), 1e-9), ("c", (0, 1), 1e-9), ("r", (0,), 1e-9), ("e", (0, 2), 1e-9), ("d", None, 1e-13),
+     ("ts", None, 1e-5), ("k", None, 1e-4)],
+)
+def test_gradient_matches_central_differences(which, index, step):
+    e = jnp.array([[0.0, 1.0, 0.5]]) * UM
+    c = jnp.array([[12.0, 0, 0], [23, 3, 0]]) * UM
+    r = jnp.array([4.0, 5.0]) * UM
+    params = {"e": e, "c": c, "r": r, "d": jnp.asarray(1e-10), "k": jnp.asarray(0.7), "ts": jnp.asarray(0.2)}
+
+    def f(p):
+        return _functional(p["e"], p["c"], p["r"], p["d"], p["k"], p["ts"])
+
+    grad = jax.grad(f)(params)[which]
+    g = grad[index] if index is not None else grad
+
+    def shifted(delta):
+        p = dict(params)
+        p[which] = p[which].at[index].add(delta) if index is not None else p[which] + delta
+        return f(p)
+
+    fd = (shifted(step) - shifted(-step)) / (2 * step)  # central differences (common practice)
+    np.testing.assert_allclose(float(g), float(fd), rtol=2e-5, atol=1e-9 * abs(float(fd)) + 1e-14)
+
+
+# --- input errors and validity notes ----------------------------------------------------------------------------
+
+def test_bad_inputs_raise():
+    e, c, r = _three_layout()
+    with pytest.raises(InputError, match="overlap"):
+        shadowed_hits(e, np.array([[0, 10, 0], [0, 15, 0]]) * UM, np.array([3, 3]) * UM, 1e-10, 0.0, 0.2, 3)
+    with pytest.raises(InputError, match="inside"):
+        shadowed_hits(np.array([[12.5, 0, 0]]) * UM, c, r, 1e-10, 0.0, 0.2, 3)
+    with pytest.raises(InputError, match="diffusion"):
+        shadowed_hits(e, c, r, -1.0, 0.0, 0.2, 3)
+    with pytest.raises(InputError, match="radii"):
+        shadowed_hits(e, c, r[:2], 1e-10, 0.0, 0.2, 3)
+
+
+def test_validity_notes():
+    e, c, r = _three_layout()
+    assert validity_notes(e, c, r, 1e-10, 0.0) == []
+    close = np.array([[12.0, 0, 0], [12, 8.3, 0]]) * UM
+    assert any("gap" in n for n in validity_notes(e[:1], close, np.array([4.0, 4.0]) * UM, 1e-10, 0.0))
+    assert any("radius" in n for n in validity_notes(e[:1], c[:2], np.array([1.0, 5.0]) * UM, 1e-10, 0.0))
+
+
+# --- against the particle simulator ------------------------------------------------------------------------------
+
+def test_against_particle_simulator_small():
+    particles = pytest.importorskip("capacity.physics.particles")
+    e = np.array([[0.0, 0, 0]]) * UM
+    c = np.array([[14.0, 0, 0], [27.0, 2.0, 0]]) * UM  # one partly behind the other
+    r = np.array([5.0, 5.0]) * UM
+    ts, memory, n = 0.2, 6, 20_000
+    hits, _ = shadowed_hits(e, c, r, 1e-10, 0.0, ts, memory)
+    sim, _, se = particles.simulate_hits(e, c, r, np.zeros(2, dtype=bool), np.full(2, ts), 1e-10, 0.0, ts, memory,
+                                         particles=n, seed=11)
+    hits, sim, se = np.asarray(hits), np.asarray(sim), np.asarray(se)
+    # independent Monte Carlo: slot tolerance 0.005 (target) + 4 standard errors
+    assert np.all(np.abs(hits - sim) <= 0.005 + 4 * se)
+    total_se = np.sqrt(sim.sum(-1) * (1 - sim.sum(-1)) / n)
+    assert np.all(np.abs(hits.sum(-1) - sim.sum(-1)) <= 0.10 * sim.sum(-1) + 4 * total_se)
