@@ -121,16 +121,19 @@ def response(problem: Problem, lay: Layout):
                      problem.diffusion, problem.degradation, lay.symbol_interval, problem.memory)
 
 
-def channel_means(problem: Problem, u: dict, law):
-    """Mean counts of the current design at input law ``law`` (S,).
-
-    Returns (means, log_weights, cost, Ts): envelope: means (S, 1, R), log_weights (1,) = 0; isi-as-noise:
-    means (S, P, R) over the P = S^lags enumerated pasts with log probabilities log_weights (P,). cost (S,)
-    molecules per symbol; Ts seconds.
-    """
+def design_arrays(problem: Problem, u: dict):
+    """Unconstrained ``u`` -> (hits (E,R,L+1), tail (E,R), symbols (S,E) molecules, Ts seconds)."""
     lay = layout(problem.space, constrain(problem.space, u), problem.base_symbols)
     hits, tail = response(problem, lay)
-    sym = lay.symbols
+    return hits, tail, lay.symbols, lay.symbol_interval
+
+
+def channel_means(problem: Problem, hits, tail, sym, law):
+    """Mean counts for hits (E,R,L+1), tail (E,R), symbols (S,E) at input law ``law`` (S,).
+
+    Returns (means, log_weights): envelope: means (S, 1, R), log_weights (1,) = 0; isi-as-noise: means (S, P, R)
+    over the P = S^lags enumerated pasts, with their log probabilities log_weights (P,).
+    """
     n_sym = sym.shape[0]
     keep = 1 if problem.rate == "envelope" else 1 + problem.lags
     resid = jnp.sum(hits[:, :, keep:], axis=-1)
@@ -140,14 +143,11 @@ def channel_means(problem: Problem, u: dict, law):
     base = jnp.asarray(problem.background) + mean_release @ resid  # (R,)
     now = sym @ hits[:, :, 0]  # (S, R)
     if keep == 1:
-        means = (base[None, :] + now)[:, None, :]
-        logw = jnp.zeros(1)
-    else:
-        pasts = np.array(np.unravel_index(np.arange(n_sym ** problem.lags), (n_sym,) * problem.lags)).T  # (P, lags)
-        isi = sum(sym[pasts[:, l]] @ hits[:, :, l + 1] for l in range(problem.lags))  # (P, R)
-        means = base[None, None, :] + now[:, None, :] + isi[None, :, :]
-        logw = jnp.sum(jnp.log(law)[pasts], axis=1)
-    return means, logw, jnp.sum(sym, axis=1), lay.symbol_interval
+        return (base[None, :] + now)[:, None, :], jnp.zeros(1)
+    pasts = np.array(np.unravel_index(np.arange(n_sym ** problem.lags), (n_sym,) * problem.lags)).T  # (P, lags)
+    isi = sum(sym[pasts[:, l]] @ hits[:, :, l + 1] for l in range(problem.lags))  # (P, R)
+    means = base[None, None, :] + now[:, None, :] + isi[None, :, :]
+    return means, jnp.sum(jnp.log(law)[pasts], axis=1)
 
 
 def log_poisson_grid(means, lo, sizes: tuple):
@@ -191,33 +191,45 @@ def _ladder(n: int) -> int:
 
 
 def choose_grid(means: np.ndarray):
-    """Output windows for means (..., R): (lo (R,) float, sizes tuple, truncated mass).
+    """Output windows for means (..., R): (lo (R,) float, sizes tuple of int, truncated mass).
 
-    Window: from max(0, min - 8 sd - 8) to max + 8 sd + 8 counts, length rounded up by :func:`_ladder`. The
-    truncated mass is the largest Poisson probability outside the window over all means (scipy.stats.poisson).
+    Window: from max(0, min - 8 sd - 8) to max + 8 sd + 8 counts, length rounded up by :func:`_ladder`.
     """
     m = np.asarray(means, dtype=float).reshape(-1, np.shape(means)[-1])
-    lo, sizes, trunc = [], [], 0.0
+    lo, sizes = [], []
     for r in range(m.shape[1]):
         mn, mx = m[:, r].min(), m[:, r].max()
         a = max(0.0, math.floor(mn - 8.0 * math.sqrt(mn) - 8.0))
         b = math.ceil(mx + 8.0 * math.sqrt(mx) + 8.0)
-        n = _ladder(int(b - a + 1))
         lo.append(a)
-        sizes.append(n)
-        inside = stats.poisson.cdf(a + n - 1, m[:, r]) - stats.poisson.cdf(a - 1, m[:, r])
-        trunc = max(trunc, float(np.max(1.0 - inside)))
-    return np.asarray(lo, dtype=float), tuple(sizes), trunc
+        sizes.append(_ladder(int(b - a + 1)))
+    lo = np.asarray(lo, dtype=float)
+    return lo, tuple(sizes), truncated_mass(means, lo, tuple(sizes))
 
 
-def _surrogate(problem: Problem, sizes: tuple, u: dict, fixed: Fixed):
-    """(objective surrogate, (bits, molecules)): value equals the objective at the fixed law (see module)."""
+def truncated_mass(means, lo, sizes) -> float:
+    """Largest Poisson probability outside the window ``lo .. lo + size - 1`` of any receiver and mean
+    (scipy.stats.poisson)."""
+    m = np.asarray(means, dtype=float).reshape(-1, np.shape(means)[-1])
+    out = 0.0
+    for r, n in enumerate(sizes):
+        inside = stats.poisson.cdf(lo[r] + n - 1, m[:, r]) - stats.poisson.cdf(lo[r] - 1, m[:, r])
+        out = max(out, float(np.max(1.0 - inside)))
+    return out
+
+
+def _surrogate(problem: Problem, sizes: tuple, arrays, fixed: Fixed):
+    """(objective surrogate, (bits, molecules, Ts)) from design arrays (hits, tail, symbols, Ts).
+
+    Its value equals the objective at the fixed law; its gradient is the envelope gradient (see module).
+    """
+    hits, tail, sym, ts = arrays
     law = jnp.asarray(fixed.law)
-    means, logw, cost, ts = channel_means(problem, u, law)
+    means, logw = channel_means(problem, hits, tail, sym, law)
     logp = log_poisson_grid(means, jnp.asarray(fixed.lo), sizes)  # (S, P, Y)
     log_w = logsumexp(logp + logw[None, :, None], axis=1)  # (S, Y)
     bits = mutual_information_bits(law, log_w)
-    molecules = law @ cost
+    molecules = law @ jnp.sum(sym, axis=1)
     budget = problem.budget
     lagr = bits if budget is None or problem.rate != "envelope" else bits - fixed.slope * (molecules - budget)
     if problem.objective == "bits-per-second":
@@ -235,8 +247,9 @@ def _surrogate(problem: Problem, sizes: tuple, u: dict, fixed: Fixed):
 class Objective:
     """A compiled design objective: :meth:`evaluate` (value, and gradient when asked) at unconstrained ``u``.
 
-    Every call counts one evaluation in ``self.evaluations``. The law from the previous call warm-starts the
-    fixed point of the envelope rate.
+    The response model runs once per evaluation (``jax.vjp``, compiled once); the channel part is compiled per
+    output-grid size. Every call counts one evaluation in ``self.evaluations``. The law from the previous call
+    warm-starts the fixed point of the envelope rate.
     """
 
     def __init__(self, problem: Problem):
@@ -248,16 +261,28 @@ class Objective:
         self.evaluations = 0
         n_sym = np.shape(problem.base_symbols)[0]
         self._law = np.full(n_sym, 1.0 / n_sym)
-        self._means = jax.jit(lambda u, law: channel_means(problem, u, law))
+        arrays = lambda u: design_arrays(problem, u)  # noqa: E731
+        self._forward = jax.jit(arrays)
+        self._pull = jax.jit(lambda u, ct: jax.vjp(arrays, u)[1](ct)[0])
+        self._means = jax.jit(lambda arr, law: channel_means(problem, arr[0], arr[1], arr[2], law)[0])
+        self._sizes = None
         self._vg = {}
 
-    def _value_and_grad(self, sizes):
+    def _channel(self, sizes):
+        """Compiled channel part on the design arrays (value, and value with d/d arrays), per grid size."""
         if sizes not in self._vg:
-            fn = jax.value_and_grad(lambda u, fixed: _surrogate(self.problem, sizes, u, fixed), has_aux=True)
-            self._vg[sizes] = (jax.jit(fn), jax.jit(lambda u, fixed: _surrogate(self.problem, sizes, u, fixed)))
+            fn = lambda arr, fixed: _surrogate(self.problem, sizes, arr, fixed)  # noqa: E731
+            self._vg[sizes] = (jax.jit(jax.value_and_grad(fn, has_aux=True)), jax.jit(fn))
         return self._vg[sizes]
 
-    def _solve(self, u):
+    def _grow(self, sizes):
+        """Grid sizes never shrink within one objective, so the compiled functions are reused."""
+        if self._sizes is not None:
+            sizes = tuple(max(a, b) for a, b in zip(sizes, self._sizes))
+        self._sizes = sizes
+        return sizes
+
+    def _solve(self, arrays):
         """Law, cost multiplier and certified gap: fixed point of (law -> interference -> Blahut–Arimoto)."""
         from capacity.information.blahut_arimoto import blahut_arimoto
 
@@ -266,17 +291,15 @@ class Objective:
             n_sym = np.shape(problem.base_symbols)[0]
             return np.full(n_sym, 1.0 / n_sym), 0.0, 0.0
         law = self._law
+        cost = np.asarray(arrays[2]).sum(axis=1)
         passes = FIXED_POINT_PASSES if problem.residual == "interference" else 1
         for _ in range(passes):
-            means, _, cost, _ = self._means(u, jnp.asarray(law))
-            means = np.asarray(means)[:, 0, :]
+            means = np.asarray(self._means(arrays, jnp.asarray(law)))[:, 0, :]
             lo, sizes, _ = choose_grid(means)
             log_w = np.asarray(log_poisson_grid(jnp.asarray(means), jnp.asarray(lo), sizes))
-            w = np.exp(log_w)
-            w = w / w.sum(axis=1, keepdims=True)
+            w = np.exp(log_w)  # rows sum to 1 - truncated mass; the solver accounts for the missing mass
             budget = problem.budget
-            res = blahut_arimoto(w, cost=np.asarray(cost) if budget is not None else None, budget=budget,
-                                 tol=1e-10)
+            res = blahut_arimoto(w, cost=cost if budget is not None else None, budget=budget, tol=1e-10)
             law = np.asarray(res.input_distribution, dtype=float)
         law = np.maximum(law, 0.0)
         return law / law.sum(), float(res.slope), float(res.gap)
@@ -285,10 +308,13 @@ class Objective:
         """Objective at unconstrained parameters ``u`` (dict of arrays); with ``grad``, d objective / d u too."""
         self.evaluations += 1
         u = {k: jnp.asarray(v, dtype=jnp.float64) for k, v in u.items()}
-        law, slope, gap = self._solve(u)
+        arrays = self._forward(u)
+        law, slope, gap = self._solve(arrays)
         self._law = law
-        means, _, _, _ = self._means(u, jnp.asarray(law))
-        lo, sizes, trunc = choose_grid(np.asarray(means))
+        means = np.asarray(self._means(arrays, jnp.asarray(law)))
+        lo, sizes, _ = choose_grid(means)
+        sizes = self._grow(sizes)
+        trunc = truncated_mass(means, lo, sizes)
         n_out = int(np.prod(sizes))
         n_mix = int(np.prod(np.shape(means)[:2])) * n_out
         if n_out > MAX_OUTPUTS or n_mix > MAX_MIXTURE:
@@ -296,12 +322,12 @@ class Objective:
                              f"the count grid is too large ({n_out} outputs, {n_mix} mixture terms)",
                              "use fewer receivers, smaller releases, or rate='envelope'")
         fixed = Fixed(jnp.asarray(law), jnp.asarray(slope), jnp.asarray(lo))
-        vg, val = self._value_and_grad(sizes)
-        if grad:
-            (_, (bits, molecules, ts)), g = vg(u, fixed)
-            g = {k: np.asarray(v) for k, v in g.items()}
+        vg, val = self._channel(sizes)
+        if grad:  # chain rule in two compiled pieces: d value / d arrays, then the response model's pullback
+            (_, (bits, molecules, ts)), ct = vg(arrays, fixed)
+            g = {k: np.asarray(v) for k, v in self._pull(u, ct).items()}
         else:
-            _, (bits, molecules, ts) = val(u, fixed)
+            _, (bits, molecules, ts) = val(arrays, fixed)
             g = None
         value = objective_value(self.problem.objective, float(bits), float(molecules), float(ts))
         if not math.isfinite(value):

@@ -17,7 +17,8 @@ tunable            physical value (SI)               map from u, and what it mov
                                                      releases w_e times the symbol's molecules (the
                                                      total is unchanged). Other schemes: emitter e's
                                                      releases are scaled by E·w_e (w uniform = as given).
-``gap``            the gap from the closest          g = g_min + softplus(u). Each receiver moves along
+``gap``            the gap from the closest          g = g_min + g0·softplus(u) (g0 the
+                                                     given gap). Each receiver moves along
                    receiver's surface to its nearest  the line from its nearest emitter (nearest in the
                    emitter, metres                    given layout); every receiver's gap changes by the
                                                      same amount, so their differences are kept.
@@ -175,6 +176,10 @@ def _lower(space, name):
     return 0.0
 
 
+def _unit(space, name):
+    return space.base_gap if name == "gap" else 1.0
+
+
 def constrain(space: DesignSpace, u: dict) -> dict:
     """Unconstrained ``u`` -> physical design values (see the module table). Pure JAX, differentiable."""
     out = {}
@@ -192,8 +197,8 @@ def constrain(space: DesignSpace, u: dict) -> dict:
             out[name] = space.peak * jax.nn.sigmoid(x)
         elif name == "split":
             out[name] = jax.nn.softmax(x)
-        else:  # gap, spacing: a floor plus a softplus offset
-            out[name] = _lower(space, name) + jax.nn.softplus(x)
+        else:  # gap, spacing: a floor plus a softplus offset (in units of the given gap / of 1)
+            out[name] = _lower(space, name) + _unit(space, name) * jax.nn.softplus(x)
     return out
 
 
@@ -218,7 +223,7 @@ def unconstrain(space: DesignSpace, phys: dict) -> dict:
         elif name == "split":
             out[name] = jnp.asarray(np.log(np.maximum(x, 1e-300)))
         else:
-            z = np.maximum(x - _lower(space, name), 1e-12)
+            z = np.maximum((x - _lower(space, name)) / _unit(space, name), 1e-12)
             out[name] = jnp.asarray(np.where(z > 30, z, np.log(np.expm1(np.minimum(z, 30)))))
     return out
 
