@@ -1,0 +1,275 @@
+"""Private JAX kernel of the particle simulator: one buffer of molecules advanced by adaptive Brownian steps.
+
+Time is counted in integer *ticks* of length ``dt`` (the base step). Slot boundaries (``n_slot`` ticks apart),
+passive sampling instants and the horizon ``(L+1) * n_slot`` are all whole ticks, so every step can be made to land
+on them exactly. One iteration advances every molecule of the buffer by one step of its own length:
+
+* **Step length.** ``m = clip(floor(d_min^2 / (c * D * dt)), 1, n_slot)`` ticks, ``d_min`` the distance to the
+  nearest absorbing surface (adaptive mode; ``m = 1`` in fixed mode), cut so that the step ends no later than the
+  next slot boundary, the next passive sampling instant or the molecule's death tick.
+* **Move.** ``x <- x + sqrt(2 D h) z``, ``z ~ N(0, I_3)``, ``h = m * dt`` (exact for free diffusion).
+* **Absorption.** An end inside absorbing sphere ``j`` means absorbed in this step. If both ends are outside
+  (surface distances ``d1, d2``, centre distances ``r1 = a + d1, r2 = a + d2``) sphere ``j`` is touched with the
+  Brownian-bridge probability of the radial process (exact for one sphere)
+  ``p = [exp(-d1 d2/(D h)) - exp(-r1 r2/(D h))] / [1 - exp(-r1 r2/(D h))]``, which is the sheet's
+  ``[e^(-(d1+d2)^2/4Dh) - e^(-(r1+r2)^2/4Dh)] / [e^(-(r2-r1)^2/4Dh) - e^(-(r1+r2)^2/4Dh)]`` divided through by
+  ``e^(-(r2-r1)^2/4Dh)``; or the planar ``exp(-d1 d2/(D h))`` (Lamm & Schulten, J. Chem. Phys. 78, 1983; Andrews &
+  Bray, Phys. Biol. 1, 2004); or none (naive step-and-check). Spheres are tested independently; if several are
+  touched in one step the one with the largest ``p`` takes the molecule. The contact is credited to the slot that
+  holds the step (steps never straddle a slot boundary, so the slot is exact).
+* **Degradation.** Each molecule carries an exponential lifetime (rate ``k``) in ticks; steps stop at the whole
+  tick ``floor(life)`` and the last step has the fractional length ``life - floor(life)``, after which the molecule
+  is gone. Absorption in that last step counts (it happened before death). This is exact, not ``O(dt)``.
+* **Passive spheres** do not interact; a molecule whose step ends on a sampling instant of passive sphere ``j``
+  adds one count to ``(j, slot)`` if it is inside.
+* **Finish.** Absorbed, dead, or alive at the horizon (then its lone eventual-capture probabilities are added to
+  the tail accumulator and, optionally, its position is stored). Freed buffer places take the next molecules.
+
+Randomness: a counter-based SplitMix64 hash (Steele, Lea & Flood, "Fast splittable pseudorandom number
+generators", OOPSLA 2014). Emitter ``i`` has the key ``base = mix64(mix64(seed) + golden * (i + 1))``; molecule
+``n`` owns the stream ``mix64(base + golden * (n + 1))`` and draws its numbers as the SplitMix64 sequence of that
+stream (index 0: lifetime; then a fixed number of words per step). A molecule's path therefore does not depend on
+the buffer size or on which other molecules share the buffer. (jax.random's threefry was used first; its XLA
+compilation took tens of seconds per kernel on the 2-core build machine, this hash compiles in well under one.)
+"""
+
+from __future__ import annotations
+
+from functools import partial
+from typing import NamedTuple
+
+import jax
+import jax.numpy as jnp
+import numpy as np
+from jax import lax
+
+CORRECTIONS = ("radial", "planar", "none")
+
+
+class Config(NamedTuple):
+    """Static (hashable) settings of one compiled kernel (everything else is traced, so a new layout, step,
+    molecule count or seed does not recompile)."""
+
+    buffer: int  # molecules advanced together
+    memory: int  # L
+    keep_positions: int  # capacity of the survivors' position store (0: none)
+    block: int  # iterations per call
+
+
+class Geometry(NamedTuple):
+    """Traced layout arrays (SI)."""
+
+    emitter: jax.Array  # (3,)
+    centres: jax.Array  # (R, 3)
+    radii: jax.Array  # (R,)
+    absorbing: jax.Array  # (R,) bool
+    passive: jax.Array  # (R,) bool (a padding sphere is neither absorbing nor passive)
+    offsets: jax.Array  # (R,) int64 ticks, sampling offset of passive spheres
+    diffusion: jax.Array  # scalar
+    degradation: jax.Array  # scalar
+    dt: jax.Array  # scalar, seconds per tick
+    base_key: jax.Array  # () uint64, mix64 of the seed and emitter index
+    n_slot: jax.Array  # int64 ticks per slot
+    horizon: jax.Array  # int64 ticks, (L+1) * n_slot
+    n_total: jax.Array  # int64 molecules of this emitter
+    adapt: jax.Array  # c in m = d^2/(c D dt); 0 means fixed steps of one tick
+    correction: jax.Array  # int: index into CORRECTIONS
+
+
+class State(NamedTuple):
+    x: jax.Array  # (C, 3) positions
+    t: jax.Array  # (C,) int64 ticks
+    life: jax.Array  # (C,) float64 lifetime in ticks (inf without degradation)
+    key: jax.Array  # (C,) uint64 per-molecule stream
+    mid: jax.Array  # (C,) int64 molecule id, -1 for an empty place
+    nstep: jax.Array  # (C,) int64 steps taken
+    next_id: jax.Array  # () int64 next molecule to load
+    counts: jax.Array  # (R, L+1) int64 absorbed / sampled counts
+    tail: jax.Array  # (R,) float64 sum of lone eventual-capture probabilities of survivors
+    survivors: jax.Array  # () int64 molecules alive at the horizon
+    steps: jax.Array  # () int64 steps taken by real molecules
+    ticks: jax.Array  # () float64 simulated time of real molecules, in ticks (= steps a fixed-step run needs)
+    positions: jax.Array  # (N or 1, 3) final positions of survivors (NaN otherwise)
+
+
+def initial_state(cfg: Config, geom: Geometry, n_spheres: int) -> State:
+    c = cfg.buffer
+    n_pos = max(cfg.keep_positions, 1)
+    return State(
+        x=jnp.broadcast_to(geom.emitter, (c, 3)),
+        t=jnp.zeros(c, jnp.int64),
+        life=jnp.full(c, jnp.inf),
+        key=jnp.zeros(c, jnp.uint64),
+        mid=jnp.full(c, -1, jnp.int64),
+        nstep=jnp.zeros(c, jnp.int64),
+        next_id=jnp.zeros((), jnp.int64),
+        counts=jnp.zeros((n_spheres, cfg.memory + 1), jnp.int64),
+        tail=jnp.zeros(n_spheres),
+        survivors=jnp.zeros((), jnp.int64),
+        steps=jnp.zeros((), jnp.int64),
+        ticks=jnp.zeros(()),
+        positions=jnp.full((n_pos, 3), jnp.nan),
+    )
+
+
+def _crossing(d1, d2, r1, r2, d_h, correction):
+    """Probability that the bridge of one step touched the sphere, both ends outside (see module docstring).
+
+    ``correction`` is 0 (radial), 1 (planar) or 2 (none)."""
+    planar = jnp.exp(-d1 * d2 / d_h)
+    b = r1 * r2 / d_h
+    radial = (planar - jnp.exp(-b)) / (-jnp.expm1(-b))
+    return jnp.where(correction == 0, radial, jnp.where(correction == 1, planar, 0.0))
+
+
+_GOLDEN = np.uint64(0x9E3779B97F4A7C15)
+_M1 = np.uint64(0xBF58476D1CE4E5B9)
+_M2 = np.uint64(0x94D049BB133111EB)
+
+
+def mix64(z):
+    """SplitMix64 finaliser (Steele, Lea & Flood, OOPSLA 2014): a bijective 64-bit hash; numpy or jax uint64."""
+    z = (z ^ (z >> 30)) * _M1
+    z = (z ^ (z >> 27)) * _M2
+    return z ^ (z >> 31)
+
+
+def _unit(words):
+    """uint64 words -> uniforms in (0, 1) with 53-bit resolution."""
+    return ((words >> 11).astype(jnp.float64) + 0.5) * 2.0**-53
+
+
+def _gaussian_and_uniform(stream, nstep, n_uniform):
+    """Per molecule: 3 standard normals (Box-Muller) and ``n_uniform`` uniforms for step ``nstep``.
+
+    Word ``w`` of step ``s`` is ``mix64(stream + golden * (s * W + w + 1))`` with ``W = 4 + n_uniform`` words per
+    step: the SplitMix64 sequence of the molecule's own stream, indices 1, 2, ... (index 0 is its lifetime).
+    """
+    n_words = 4 + n_uniform
+    lane = jnp.arange(1, n_words + 1, dtype=jnp.uint64)
+    index = nstep.astype(jnp.uint64)[:, None] * np.uint64(n_words) + lane[None, :]
+    u = _unit(mix64(stream[:, None] + _GOLDEN * index))
+    rad = jnp.sqrt(-2.0 * jnp.log(u[:, 0:2]))
+    ang = (2.0 * jnp.pi) * u[:, 2:4]
+    z = jnp.concatenate([rad * jnp.cos(ang), rad[:, :1] * jnp.sin(ang[:, :1])], axis=1)
+    return z, u[:, 4:]
+
+
+def _refill(geom: Geometry, new_id):
+    """Streams and lifetimes (ticks) of newly loaded molecules."""
+    stream = mix64(geom.base_key + _GOLDEN * (new_id.astype(jnp.uint64) + np.uint64(1)))
+    e = -jnp.log(_unit(mix64(stream)))
+    k_pos = geom.degradation > 0.0
+    life = jnp.where(k_pos, e / jnp.where(k_pos, geom.degradation * geom.dt, 1.0), jnp.inf)
+    return stream, life
+
+
+def _iteration(cfg: Config, geom: Geometry, s: State) -> State:
+    big = jnp.int64(2**62)
+    n_sph = geom.radii.shape[0]
+    n_slot, horizon = geom.n_slot, geom.horizon
+    active = s.mid >= 0
+    rel1 = s.x[:, None, :] - geom.centres[None, :, :]
+    r1 = jnp.sqrt(jnp.sum(rel1 * rel1, axis=-1))  # (C, R)
+    d1 = r1 - geom.radii
+
+    # step length in ticks
+    dmin = jnp.min(jnp.where(geom.absorbing, d1, jnp.inf), axis=1)
+    scale = jnp.where(geom.adapt > 0.0, geom.adapt * geom.diffusion * geom.dt, 1.0)
+    m_f = jnp.where(geom.adapt > 0.0, jnp.floor(dmin * dmin / scale), 1.0)
+    m = jnp.clip(m_f, 1.0, n_slot.astype(jnp.float64)).astype(jnp.int64)
+    next_bound = (s.t // n_slot + 1) * n_slot
+    passive = geom.passive
+    after = s.t[:, None] >= geom.offsets[None, :]
+    lag = jnp.where(after, (s.t[:, None] - geom.offsets[None, :]) // n_slot + 1, 0)  # (C, R)
+    sample = lag * n_slot + geom.offsets[None, :]
+    sample_ok = passive[None, :] & (lag <= cfg.memory)
+    next_sample = jnp.min(jnp.where(sample_ok, sample, big), axis=1)
+    life_floor = jnp.floor(jnp.minimum(s.life, (horizon + 1).astype(jnp.float64))).astype(jnp.int64)
+    death_step = life_floor <= s.t
+    cap = jnp.minimum(jnp.minimum(next_bound, next_sample), jnp.where(death_step, big, life_floor))
+    m = jnp.minimum(m, cap - s.t)
+    h_ticks = jnp.where(death_step, s.life - s.t.astype(jnp.float64), m.astype(jnp.float64))
+    h = h_ticks * geom.dt
+
+    z, u = _gaussian_and_uniform(s.key, s.nstep, n_sph)
+    x2 = s.x + jnp.sqrt(2.0 * geom.diffusion * h)[:, None] * z
+    rel2 = x2[:, None, :] - geom.centres[None, :, :]
+    r2 = jnp.sqrt(jnp.sum(rel2 * rel2, axis=-1))
+    d2 = r2 - geom.radii
+    d_h = jnp.maximum(geom.diffusion * h, 1e-300)[:, None]
+    p = _crossing(jnp.maximum(d1, 0.0), jnp.maximum(d2, 0.0), r1, r2, d_h, geom.correction)
+    inside_end = geom.absorbing[None, :] & (d2 <= 0.0)
+    touched = geom.absorbing[None, :] & (d2 > 0.0) & (u < p)
+    score = jnp.where(inside_end, 2.0, jnp.where(touched, p, -1.0))
+    which = jnp.argmax(score, axis=1)
+    absorbed = active & jnp.any(inside_end | touched, axis=1)
+    slot = jnp.clip(s.t // n_slot, 0, cfg.memory)
+    counts = s.counts.at[which, slot].add(absorbed.astype(jnp.int64))
+
+    died = active & death_step & ~absorbed
+    alive = active & ~absorbed & ~died
+    t2 = s.t + m
+    hit_sample = alive[:, None] & sample_ok & (sample == t2[:, None]) & (d2 < 0.0)
+    lag_idx = jnp.clip(lag, 0, cfg.memory)
+    sph_idx = jnp.broadcast_to(jnp.arange(n_sph), lag.shape)
+    counts = counts.at[sph_idx, lag_idx].add(hit_sample.astype(jnp.int64))
+
+    at_horizon = alive & (t2 >= horizon)
+    root = jnp.sqrt(geom.degradation / geom.diffusion)
+    lone = geom.radii / r2 * jnp.exp(-jnp.maximum(d2, 0.0) * root)
+    lone = jnp.where(geom.absorbing[None, :] & at_horizon[:, None], lone, 0.0)
+    positions = s.positions
+    if cfg.keep_positions:
+        idx = jnp.where(at_horizon, s.mid, cfg.keep_positions)
+        positions = positions.at[idx].set(x2, mode="drop")
+    keep = alive & ~at_horizon
+
+    # refill freed places with the next molecules (skipped when nothing is waiting)
+    free = ~keep
+    rank = jnp.cumsum(free.astype(jnp.int64)) - 1
+    new_id = s.next_id + rank
+    take = free & (new_id < geom.n_total)
+    mol_key, new_life = lax.cond(
+        jnp.any(take),
+        lambda: _refill(geom, new_id),
+        lambda: (s.key, s.life),
+    )
+    n_free = jnp.sum(free.astype(jnp.int64))
+    return State(
+        x=jnp.where(take[:, None], geom.emitter[None, :], x2),
+        t=jnp.where(take, 0, t2),
+        life=jnp.where(take, new_life, s.life),
+        key=jnp.where(take, mol_key, s.key),
+        mid=jnp.where(take, new_id, jnp.where(keep, s.mid, -1)),
+        nstep=jnp.where(take, 0, s.nstep + 1),
+        next_id=jnp.minimum(s.next_id + n_free, geom.n_total),
+        counts=counts,
+        tail=s.tail + jnp.sum(lone, axis=0),
+        survivors=s.survivors + jnp.sum(at_horizon.astype(jnp.int64)),
+        steps=s.steps + jnp.sum(active.astype(jnp.int64)),
+        ticks=s.ticks + jnp.sum(jnp.where(active, h_ticks, 0.0)),
+        positions=positions,
+    )
+
+
+@partial(jax.jit, static_argnums=0)
+def advance(cfg: Config, geom: Geometry, state: State) -> State:
+    """Run at most ``cfg.block`` iterations, stopping early when every molecule is finished."""
+
+    def cond(carry):
+        i, s = carry
+        busy = jnp.any(s.mid >= 0) | (s.next_id < geom.n_total)
+        return (i < cfg.block) & busy
+
+    def body(carry):
+        i, s = carry
+        return i + 1, _iteration(cfg, geom, s)
+
+    _, out = lax.while_loop(cond, body, (jnp.zeros((), jnp.int64), state))
+    return out
+
+
+def finished(n_total: int, state: State) -> bool:
+    """True when no molecule is in flight and none is waiting."""
+    return bool((int(state.next_id) >= n_total) and not bool(jnp.any(state.mid >= 0)))

@@ -1,0 +1,266 @@
+"""The ``particles`` response model: Brownian simulation of the whole layout, every sphere present at once.
+
+Public function: :func:`simulate_hits`. It is the ground truth against which the ``lone`` and ``shadowed`` models
+are measured, so it is built to be exact where it can be:
+
+* free diffusion between checks is sampled exactly (Gaussian increments), with adaptive step lengths;
+* contacts between the two ends of a step are caught with the Brownian-bridge crossing probability of the radial
+  process, which is exact for one sphere whatever the step (so a lone sphere is simulated with no time-step bias at
+  all; with several spheres the remaining error comes from treating them one at a time inside a step) -- Lamm &
+  Schulten, J. Chem. Phys. 78 (1983); Andrews & Bray, Phys. Biol. 1 (2004); Gobet, Stoch. Proc. Appl. 87 (2000);
+* slot boundaries, passive sampling instants and the horizon are whole numbers of base steps and every step lands
+  on them, so the slot of each contact is exact;
+* degradation uses an exact exponential lifetime per molecule.
+
+The kernel and its step rule are described in :mod:`capacity.physics._particles_kernel`; input checks live in
+:mod:`capacity.physics._particles_checks`.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import NamedTuple
+
+import jax
+import jax.numpy as jnp
+import numpy as np
+
+from capacity import _jax  # noqa: F401  (float64)
+from capacity.physics import _particles_kernel as _k
+from capacity.physics._particles_checks import auto_time_step, check_inputs
+
+#: Adaptive step constant c: a molecule at distance d from the nearest absorbing surface takes a step of about
+#: d^2 / (c D), i.e. a displacement of about d * sqrt(6/c) (3-D rms). Chosen by measurement against the exact
+#: two-sphere split (tests/test_particles.py).
+ADAPT = 16.0
+#: Molecules advanced together (memory ~ a few hundred bytes each); fixed so that runs of any size share one
+#: compilation (the kernel compiles once per (padded sphere count, memory L, position store)).
+BUFFER = 2048
+#: Kernel iterations per call (one progress-bar update per call).
+BLOCK = 512
+
+
+class Simulation(NamedTuple):
+    """Everything one run measures (private helper result, returned by :func:`_simulate`).
+
+    hits, tail, stderr : as in :func:`simulate_hits`.
+    time_step : base step dt (s); slot = ``n_slot`` steps.
+    n_slot : steps per slot.
+    offsets : (R,) sampling offsets actually used, seconds (rounded to whole steps).
+    survivor_positions : list over emitters of (S_i, 3) arrays, metres, of the molecules still free at the
+        horizon (only when asked for; else empty arrays).
+    steps : (E,) number of molecule-steps actually taken.
+    ticks : (E,) simulated molecule-time in base steps: the molecule-steps a fixed-step run of the same
+        molecules would need (absorbed and degraded molecules stop counting).
+    survivors : (E,) molecules free at the horizon.
+    """
+
+    hits: np.ndarray
+    tail: np.ndarray
+    stderr: np.ndarray
+    time_step: float
+    n_slot: int
+    offsets: np.ndarray
+    survivor_positions: list
+    steps: np.ndarray
+    ticks: np.ndarray
+    survivors: np.ndarray
+
+
+def simulate_hits(
+    emitters,
+    centres,
+    radii,
+    passive,
+    sample_offsets,
+    diffusion,
+    degradation,
+    symbol_interval,
+    memory: int,
+    *,
+    particles: int,
+    seed: int,
+    time_step: float | None = None,
+    progress: bool = False,
+):
+    """Hit probabilities of every emitter-receiver pair by Brownian simulation of the whole layout.
+
+    Parameters
+    ----------
+    emitters : (E, 3) m, point sources; each releases ``particles`` molecules at time 0.
+    centres : (R, 3) m, sphere centres.
+    radii : (R,) m, sphere radii (> 0). Absorbing spheres must not overlap each other and no emitter may lie in
+        or on an absorbing sphere.
+    passive : (R,) bool. ``False``: absorbing (a molecule is removed at first contact and counted in the slot of
+        the contact). ``True``: passive (no interaction; counts the molecules inside at ``l*Ts + offset``).
+    sample_offsets : (R,) s, sampling instant of each passive sphere within its slot, in ``[0, Ts]``; rounded to
+        the nearest whole step (ignored for absorbing spheres).
+    diffusion : D, m^2/s (> 0).
+    degradation : k, 1/s (>= 0); each molecule has an exponential lifetime of mean ``1/k``.
+    symbol_interval : Ts, s (> 0).
+    memory : L >= 0; slots ``0..L`` are simulated, horizon ``(L+1) Ts``.
+    particles : N molecules per emitter (> 0).
+    seed : integer seed. Molecule ``n`` of emitter ``i`` uses its own random stream derived from
+        ``(seed, i, n)``, so the counts do not depend on the buffer size or chunking (the tail sum may differ
+        in the last bits because of summation order).
+    time_step : base step dt in s, or ``None`` for automatic: ``min(l^2/(100 D), Ts/200)`` with ``l`` the
+        smallest length of the layout (absorbing radii, emitter-surface gaps, surface-surface gaps), then
+        shortened so that ``Ts/dt`` is a whole number. A given ``time_step`` is shortened the same way.
+        Molecules far from every absorbing surface take longer steps (whole multiples of dt, about
+        ``d^2/(16 D)``), always ending on slot boundaries and passive sampling instants.
+    progress : show a tqdm progress bar (one update per kernel call).
+
+    Returns
+    -------
+    hits : (E, R, L+1), fraction of the released molecules counted by receiver ``j`` in slot ``l``.
+    tail : (E, R), absorbing spheres: estimated probability of capture after the horizon,
+        ``(1/N) sum_{survivors} a_j/|x-c_j| * exp(-(|x-c_j| - a_j) sqrt(k/D))`` from each survivor's final
+        position ``x`` (the lone eventual-capture probability). It ignores shadowing after the horizon (every
+        sphere is treated as if alone), so it over-estimates the tail when spheres hide each other.
+        Passive spheres: 0 (not estimated; the lone closed form gives their later samples).
+    stderr : (E, R, L+1), ``sqrt(p (1-p) / N)`` (each molecule is one Bernoulli trial per slot).
+
+    Raises
+    ------
+    capacity.errors.InputError
+        For bad shapes, non-finite or out-of-range values, overlapping absorbing spheres, emitters in or on an
+        absorbing sphere.
+    """
+    sim = _simulate(
+        emitters,
+        centres,
+        radii,
+        passive,
+        sample_offsets,
+        diffusion,
+        degradation,
+        symbol_interval,
+        memory,
+        particles=particles,
+        seed=seed,
+        time_step=time_step,
+        progress=progress,
+    )
+    return sim.hits, sim.tail, sim.stderr
+
+
+def _simulate(
+    emitters,
+    centres,
+    radii,
+    passive,
+    sample_offsets,
+    diffusion,
+    degradation,
+    symbol_interval,
+    memory,
+    *,
+    particles,
+    seed,
+    time_step=None,
+    progress=False,
+    adapt: float = ADAPT,
+    correction: str = "radial",
+    keep_positions: bool = False,
+    buffer: int = BUFFER,
+    block: int = BLOCK,
+) -> Simulation:
+    """:func:`simulate_hits` with the knobs tests and benchmarks need.
+
+    adapt : c of the adaptive rule (step ~ d^2/(c D)); 0 gives fixed steps of ``dt`` everywhere.
+    correction : ``"radial"`` (exact one-sphere bridge), ``"planar"`` (``exp(-d1 d2/(D h))``) or ``"none"``
+        (naive step-and-check).
+    keep_positions : return the survivors' final positions.
+    buffer, block : molecules advanced together and iterations per kernel call.
+    """
+    inp = check_inputs(
+        emitters, centres, radii, passive, sample_offsets, diffusion, degradation, symbol_interval, memory,
+        particles, seed, time_step,
+    )
+    if correction not in _k.CORRECTIONS:
+        raise ValueError(f"correction must be one of {_k.CORRECTIONS}")
+    dt_wanted = inp.time_step if inp.time_step is not None else auto_time_step(inp)
+    n_slot = max(1, int(math.ceil(inp.symbol_interval / dt_wanted - 1e-9)))
+    dt = inp.symbol_interval / n_slot
+    offsets = np.rint(inp.sample_offsets / dt).astype(np.int64)
+    offsets = np.where(inp.passive, np.clip(offsets, 0, n_slot), 0)
+    n_emit, n_sph, n_lag = inp.emitters.shape[0], inp.radii.shape[0], inp.memory + 1
+    n_pad = max(2, _pow2_at_least(n_sph))  # spheres padded to a power of two >= 2: fewer compilations
+    pad = n_pad - n_sph
+    cfg = _k.Config(
+        buffer=int(buffer),
+        memory=inp.memory,
+        keep_positions=inp.particles if keep_positions else 0,
+        block=int(block),
+    )
+    counts = np.zeros((n_emit, n_sph, n_lag))
+    tail = np.zeros((n_emit, n_sph))
+    steps = np.zeros(n_emit, np.int64)
+    ticks = np.zeros(n_emit)
+    survivors = np.zeros(n_emit, np.int64)
+    positions = []
+    bar = _progress_bar(progress, n_emit * inp.particles)
+    with np.errstate(over="ignore"):  # uint64 arithmetic wraps on purpose
+        root = _k.mix64(np.uint64(inp.seed))
+        bases = [_k.mix64(root + _k._GOLDEN * np.uint64(i + 1)) for i in range(n_emit)]
+    for i in range(n_emit):
+        geom = _k.Geometry(
+            emitter=jnp.asarray(inp.emitters[i]),
+            centres=jnp.asarray(np.concatenate([inp.centres, np.zeros((pad, 3))])),
+            radii=jnp.asarray(np.concatenate([inp.radii, np.ones(pad)])),
+            absorbing=jnp.asarray(np.concatenate([~inp.passive, np.zeros(pad, bool)])),
+            passive=jnp.asarray(np.concatenate([inp.passive, np.zeros(pad, bool)])),
+            offsets=jnp.asarray(np.concatenate([offsets, np.zeros(pad, np.int64)])),
+            diffusion=jnp.asarray(inp.diffusion),
+            degradation=jnp.asarray(inp.degradation),
+            dt=jnp.asarray(dt),
+            base_key=jnp.asarray(bases[i], jnp.uint64),
+            n_slot=jnp.asarray(n_slot, jnp.int64),
+            horizon=jnp.asarray(n_lag * n_slot, jnp.int64),
+            n_total=jnp.asarray(inp.particles, jnp.int64),
+            adapt=jnp.asarray(float(adapt)),
+            correction=jnp.asarray(_k.CORRECTIONS.index(correction)),
+        )
+        state = _k.initial_state(cfg, geom, n_pad)
+        done_before = 0
+        while True:
+            state = _k.advance(cfg, geom, state)
+            done_now = int(state.next_id) - int(jnp.sum(state.mid >= 0))
+            if bar is not None:
+                bar.update(done_now - done_before)
+            done_before = done_now
+            if _k.finished(inp.particles, state):
+                break
+        counts[i] = np.asarray(state.counts, dtype=np.float64)[:n_sph]
+        tail[i] = np.asarray(state.tail)[:n_sph]
+        steps[i] = int(state.steps)
+        ticks[i] = float(state.ticks)
+        survivors[i] = int(state.survivors)
+        if keep_positions:
+            pos = np.asarray(state.positions)
+            positions.append(pos[np.isfinite(pos[:, 0])])
+        else:
+            positions.append(np.zeros((0, 3)))
+    if bar is not None:
+        bar.close()
+    # passive spheres sampled at t = 0 (offset 0, slot 0): inside iff the emitter is inside
+    for j in np.flatnonzero(inp.passive & (offsets == 0)):
+        inside = np.linalg.norm(inp.emitters - inp.centres[j], axis=1) < inp.radii[j]
+        counts[:, j, 0] = np.where(inside, float(inp.particles), 0.0)
+    n = float(inp.particles)
+    hits = counts / n
+    tail = np.where(inp.passive[None, :], 0.0, tail / n)
+    stderr = np.sqrt(hits * (1.0 - hits) / n)
+    return Simulation(hits, tail, stderr, dt, n_slot, offsets * dt, positions, steps, ticks, survivors)
+
+
+def _pow2_at_least(n: int) -> int:
+    return 1 << max(0, int(n - 1).bit_length())
+
+
+def _progress_bar(show: bool, total: int):
+    if not show:
+        return None
+    from tqdm.auto import tqdm
+
+    return tqdm(total=total, unit="molecule", desc="particles")
