@@ -196,19 +196,26 @@ def _symbols_and_means(keys, log_src, log_src_prior, sym_c, hits_c, base, *, n: 
     S = log_src.shape[1]
     L = hits_c.shape[2] - 1
 
+    cdf = jnp.cumsum(jnp.exp(log_src), axis=1)  # inverse-CDF draws: cheap to compile, exact
+    cdf0 = jnp.cumsum(jnp.exp(log_src_prior))
+
+    def pick(c, u):
+        return jnp.minimum(jnp.sum(u > c[..., :-1], axis=-1), c.shape[-1] - 1)
+
     def one(key):
         k_init, k_src = jax.random.split(key)
+        u = jax.random.uniform(k_src, (H + n,))
         if m == 0:
-            x = jax.random.categorical(k_src, log_src[0], shape=(H + n,))
+            x = pick(cdf[0][None, :], u[:, None])
         else:
-            s0 = jax.random.categorical(k_init, log_src_prior)
+            s0 = pick(cdf0, jax.random.uniform(k_init))
             init = (s0 // (S ** jnp.arange(m))) % S  # newest first
 
-            def draw(state, kk):
-                s = jax.random.categorical(kk, log_src[state])
+            def draw(state, uk):
+                s = pick(cdf[state], uk)
                 return s + S * (state % (S ** (m - 1))), s
 
-            _, rest = lax.scan(draw, s0, jax.random.split(k_src, H + n - m))
+            _, rest = lax.scan(draw, s0, u[: H + n - m])
             x = jnp.concatenate([init[::-1], rest])
         X = sym_c[x]  # (H+n, E)
         idx = H + jnp.arange(n)[:, None] - jnp.arange(L + 1)[None, :]
