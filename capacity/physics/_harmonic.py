@@ -1,13 +1,7 @@
-"""Private helpers of the shadowed model: lone-sphere closed forms and landing-point quadrature on a sphere.
+"""Private helper of the shadowed model: landing-point quadrature on a sphere (harmonic measure).
 
 Everything here is written for scalars/arrays in SI units and is jit- and grad-friendly.
 
-* :func:`lone_cdf` - probability that a molecule released at centre distance ``rho`` from a lone absorbing sphere
-  of radius ``a`` has been absorbed by time ``t`` (degradation rate ``k``):
-  ``F(t) = a/rho * 1/2 [e^(-g sqrt(k/D)) erfc(g/sqrt(4Dt) - sqrt(kt)) + e^(g sqrt(k/D)) erfc(g/sqrt(4Dt) + sqrt(kt))]``
-  with gap ``g = rho - a``; for ``k = 0`` it is ``a/rho * erfc(g/sqrt(4Dt))`` (Yilmaz, Heren, Tugcu, Chae, IEEE
-  Commun. Lett. 18(6), 2014; degraded form: Heren, Yilmaz, Chae, Tugcu, IEEE TMBMC 1(2), 2015). The growing term
-  is evaluated as ``erfcx(y) exp(-g^2/(4Dt) - kt)`` so nothing overflows.
 * :func:`landing_nodes` - nodes and weights of the harmonic measure (where a molecule from ``x0`` first lands on
   a lone sphere, conditioned on landing). Its density on the surface is proportional to
   ``(|x0-c|^2 - a^2)/|xi - x0|^3`` (exterior Poisson kernel). With ``s = |xi - x0|`` the measure is uniform in
@@ -20,36 +14,6 @@ from __future__ import annotations
 
 import jax.numpy as jnp
 import numpy as np
-from jax.scipy.special import erfc, erfcx
-
-
-def lone_cdf(t, radius, rho, diffusion, degradation):
-    """Lone absorbing sphere: fraction absorbed by time ``t`` (s) from centre distance ``rho`` (m).
-
-    Broadcasts over all arguments. ``t <= 0`` gives 0. The gradient with respect to ``degradation`` is exact for
-    ``degradation > 0``; at exactly 0 it is returned as 0 (the closed form has a sqrt(k) there).
-    """
-    t = jnp.asarray(t, dtype=jnp.float64)
-    gap = rho - radius
-    positive = t > 0.0
-    t_safe = jnp.where(positive, t, 1.0)
-    z = gap / jnp.sqrt(4.0 * diffusion * t_safe)
-    k_pos = degradation > 0.0
-    k_safe = jnp.where(k_pos, degradation, 1.0)
-    skt = jnp.where(k_pos, jnp.sqrt(k_safe * t_safe), 0.0)
-    x = jnp.where(k_pos, gap * jnp.sqrt(k_safe / diffusion), 0.0)
-    decaying = jnp.exp(-x) * erfc(z - skt)
-    growing = erfcx(z + skt) * jnp.exp(-(z * z) - degradation * t_safe)
-    value = radius / rho * 0.5 * (decaying + growing)
-    return jnp.where(positive, value, 0.0)
-
-
-def lone_limit(radius, rho, diffusion, degradation):
-    """Eventual absorbed fraction of a lone sphere: ``a/rho * exp(-(rho - a) sqrt(k/D))``."""
-    k_pos = degradation > 0.0
-    k_safe = jnp.where(k_pos, degradation, 1.0)
-    x = jnp.where(k_pos, (rho - radius) * jnp.sqrt(k_safe / diffusion), 0.0)
-    return radius / rho * jnp.exp(-x)
 
 
 def _frame(axis):

@@ -8,34 +8,32 @@ other sphere, or first reaches another sphere ``m`` (at time ``s``, at point ``x
 
     g_j(t; x0) = f_j(t) + sum_{m != j} integral dxi integral_0^t f_m(s, xi) g_j(t - s; xi) ds
 
-with ``g`` the lone first-passage densities (closed form) and ``f`` the true ones (unknown). This is exact. We
-approximate the joint landing law ``f_m(s, xi)`` by ``f_m(s) * h_m(xi)`` where ``h_m`` is the harmonic measure of
-the lone sphere ``m`` seen from ``x0`` (exterior Poisson kernel, density ``~ (|x0-c_m|^2 - a_m^2)/|xi-x0|^3``),
-so the coupling kernel from ``m`` to ``j`` is the CDF ``K_mj(tau) = integral h_m(xi) F_j(tau; xi) dxi`` of lone
-first-passage times from the landing point to ``j``. The idea of renewal for several absorbing receivers and the
-finding that the landing point on the shadowing sphere matters: Ferrari, Vakilipoor, Regonesi, Rapisarda,
-Magarini (arXiv 2111.12181); Vakilipoor et al., IEEE TMBMC 10(3), 2024; Sabu, Gupta, Varshney, Jindal
-(arXiv 2205.10519). The quadrature and discretisation are our own.
+with ``g`` the lone first-passage densities (closed form) and ``f`` the true ones (unknown). This is exact; the
+only approximation is the landing law on ``m``. In the Laplace domain (``p``) the convolutions are products and
+we take the landing law of the lone sphere ``m`` *at the same frequency*:
+``f~_m(p, xi) ~= P~_m(p) h~_m(p, xi)``, ``h~_m = f~_m^lone(p, xi) / g~_m^lone(p)``. At ``p -> 0`` this is the
+harmonic measure (exterior Poisson kernel ``~ (|x0-c|^2 - a^2)/|xi - x0|^3``); at high ``p`` (early arrivals) it
+concentrates on the face turned to the source - which is what matters when one receiver hides behind another
+(a time-independent landing law gave negative early hits for the hidden sphere, 40 % total error). The lone joint
+law comes from the separation-of-variables series of the sphere (modified spherical Bessel functions), see
+:mod:`capacity.physics._laplace`. Per frequency, an ``R x R`` complex linear system
+``g~_j = P~_j + sum_m K~_mj P~_m`` gives the true transforms; the slot-edge CDFs follow by the fixed Talbot
+inversion of ``P~(p)/p`` (Abate & Valko 2004), so there is no time grid and no time-step error.
 
-Discretisation
---------------
-Fine grid ``h = Ts/substeps``, ``N = (L+1)*substeps`` steps. Unknowns ``P[n, j]`` = probability of absorption by
-``j`` in step ``n``. The lone increments ``G[n, j] = F_j((n+1)h) - F_j(nh)`` are exact CDF differences. The
-arrivals at ``m`` are taken uniform inside each step, so the mass that sphere ``m``'s step-``k`` arrivals would
-send to ``j`` in step ``k+q`` is ``W[q]_mj = (1/h) int_0^h [K_mj((q+1)h - u) - K_mj(qh - u)] du`` (``K(<0) = 0``),
-integrated by Gauss-Legendre in ``u``; ``sum_q W[q] = K_mj(inf)`` exactly, so no mass is lost. Forward
-substitution ``P[n] = (I + W[0]^T)^(-1) (G[n] - sum_{k<n} W[n-k]^T P[k])`` runs in a ``lax.scan``.
+Renewal for several absorbing receivers and the importance of the landing point: Ferrari, Vakilipoor, Regonesi,
+Rapisarda, Magarini (arXiv 2111.12181); Vakilipoor et al., IEEE TMBMC 10(3), 2024; Sabu, Gupta, Varshney, Jindal
+(arXiv 2205.10519). The frequency-dependent landing law, quadrature and inversion are our own choices.
 
 Tail (eventual capture)
 -----------------------
-The eventual split solves the steady-state form of the same renewal equations,
-``G_j(inf) = P_j(inf) + sum_m K_mj(inf) P_m(inf)`` (``G(inf) = a/rho e^(-gap sqrt(k/D))``), and
-``tail = P(inf) - sum_l hits``. This avoids extrapolating the slow ``t^(-1/2)`` approach when ``k = 0`` and is
-consistent with the time-domain solution (the discrete kernels conserve mass).
+The eventual split is the same renewal system at ``p = 0`` (``q = sqrt(k/D)``; for ``k = 0`` a floor
+``q = 1e-12/max(radius)`` 1/m stands in, changing the result by ~1e-12), and ``tail = P(inf) - sum_l hits``. No
+extrapolation of the slow ``t^(-1/2)`` approach is needed. With ``k = 0`` the eventual split uses the harmonic
+measure of each lone sphere, so it carries the steady-state error measured against Kelvin images (below).
 
 Measured accuracy
 -----------------
-See :data:`VALIDATED` and ``results/validation/`` (written by ``studies/validate_responses.py``).
+See :func:`shadowed_hits` and ``results/validation/`` (written by ``studies/validate_responses.py``).
 """
 
 from __future__ import annotations
@@ -47,12 +45,12 @@ import jax.numpy as jnp
 import numpy as np
 
 from capacity.errors import InputError
-from capacity.physics._harmonic import landing_nodes, lone_cdf, lone_limit
+from capacity.physics._laplace import solve_transforms, talbot_nodes
 
-DEFAULT_SUBSTEPS = 40
-N_POLAR = 12
-N_AZIMUTH = 12
-N_SOURCE_TIME = 4
+DEFAULT_TERMS = 24
+N_POLAR = 16
+N_AZIMUTH = 16
+N_ORDERS = 80
 
 # Range over which the accuracy was measured (filled from the validation study; see validity_notes).
 VALIDATED = {
@@ -63,68 +61,26 @@ VALIDATED = {
 }
 
 
-def _pair_kernel_cdf(times, source, centres, radii, diffusion, degradation, n_polar, n_azimuth):
-    """``K[t, m, j]``: CDF at ``times`` (T,) of the lone time from m's landing law (seen from source) to j.
-
-    Also returns the eventual values ``Kinf[m, j]``. Diagonal entries are zeroed.
-    """
-    num = centres.shape[0]
-
-    def from_sphere(centre_m, radius_m):
-        points, weights = landing_nodes(source, centre_m, radius_m, n_polar, n_azimuth)  # (Q,3), (Q,)
-        rho = jnp.linalg.norm(points[:, None, :] - centres[None, :, :], axis=-1)  # (Q, R)
-        rho = jnp.maximum(rho, radii[None, :])  # the diagonal (m == j) is masked below
-        cdf = lone_cdf(times[:, None, None], radii[None, None, :], rho[None], diffusion, degradation)
-        limit = lone_limit(radii[None, :], rho, diffusion, degradation)
-        return jnp.einsum("tqj,q->tj", cdf, weights), weights @ limit
-
-    kcdf, kinf = jax.lax.map(lambda args: from_sphere(*args), (centres, radii))  # (R, T, R), (R, R)
-    off = 1.0 - jnp.eye(num, dtype=jnp.float64)
-    return jnp.transpose(kcdf, (1, 0, 2)) * off[None], kinf * off
+def _one_emitter_laplace(source, centres, radii, diffusion, degradation, symbol_interval, memory, terms, quad):
+    edges = symbol_interval * jnp.arange(1, memory + 2, dtype=jnp.float64)  # (L+1,)
+    points, gamma = talbot_nodes(edges, terms)  # (L+1, M)
+    p = points.reshape(-1)
+    q = jnp.sqrt((p + degradation) / diffusion)
+    transforms = solve_transforms(q, source, centres, radii, quad)  # (P, R)
+    cdf_terms = (transforms / p[:, None]).reshape(memory + 1, terms, -1)
+    cdf = jnp.real(jnp.einsum("lm,lmj->lj", gamma, cdf_terms))  # (L+1, R)
+    hits = jnp.diff(jnp.concatenate([jnp.zeros((1, cdf.shape[1])), cdf], axis=0), axis=0).T
+    # eventual capture: the same equations at p = 0 (q = sqrt(k/D); a tiny floor stands in for k = 0)
+    floor = 1e-12 / jnp.max(radii)
+    k_pos = degradation > 0.0
+    q0 = jnp.where(k_pos, jnp.sqrt(jnp.where(k_pos, degradation, 1.0) / diffusion), floor)
+    eventual = jnp.real(solve_transforms(q0[None].astype(jnp.complex128), source, centres, radii, quad))[0]
+    return hits, eventual - cdf[-1]
 
 
-def _one_emitter(source, centres, radii, diffusion, degradation, symbol_interval, memory, substeps, quad):
-    n_polar, n_azimuth, n_gl = quad
-    num = centres.shape[0]
-    steps = (memory + 1) * substeps
-    h = symbol_interval / substeps
-    grid = h * jnp.arange(steps + 1, dtype=jnp.float64)
-
-    rho0 = jnp.linalg.norm(source[None, :] - centres, axis=-1)  # (R,)
-    lone = lone_cdf(grid[:, None], radii[None, :], rho0[None, :], diffusion, degradation)  # (N+1, R)
-    increments = jnp.diff(lone, axis=0)  # (N, R)
-    lone_inf = lone_limit(radii, rho0, diffusion, degradation)
-
-    # Source-time quadrature inside one step: u_g in (0, h), weights summing to 1.
-    x_gl, w_gl = np.polynomial.legendre.leggauss(n_gl)
-    u = 0.5 * h * (jnp.asarray(x_gl) + 1.0)
-    w = 0.5 * jnp.asarray(w_gl)
-    times = (grid[:, None] - u[None, :]).reshape(-1)  # (N+1)*n_gl, negative ones give 0
-    kcdf, kinf = _pair_kernel_cdf(times, source, centres, radii, diffusion, degradation, n_polar, n_azimuth)
-    kcdf = jnp.einsum("ngmj,g->nmj", kcdf.reshape(steps + 1, n_gl, num, num), w)  # (N+1, R, R)
-    kernel = jnp.diff(kcdf, axis=0)  # W[q], q = 0..N-1, shape (N, R, R)
-
-    coupling = jnp.eye(num, dtype=jnp.float64) + kernel[0].T
-    inverse = jnp.linalg.inv(coupling)
-    # Lagged kernels W[q] for q >= 1 laid out so that one dynamic slice gives W[n - k] for k = 0..N-1.
-    lagged = jnp.concatenate([jnp.zeros((steps, num, num)), kernel[1:]], axis=0)  # index q + N - 1
-    reversed_ = lagged[::-1]
-
-    def step(history, n):
-        window = jax.lax.dynamic_slice(reversed_, (steps - 1 - n, 0, 0), (steps, num, num))
-        driven = jnp.einsum("kmj,km->j", window, history)
-        current = inverse @ (increments[n] - driven)
-        return history.at[n].set(current), None
-
-    history, _ = jax.lax.scan(step, jnp.zeros((steps, num)), jnp.arange(steps))
-    hits = history.reshape(memory + 1, substeps, num).sum(axis=1).T  # (R, L+1)
-    eventual = jnp.linalg.solve(jnp.eye(num, dtype=jnp.float64) + kinf.T, lone_inf)
-    return hits, eventual - hits.sum(axis=1)
-
-
-@partial(jax.jit, static_argnames=("memory", "substeps", "quad"))
-def _shadowed_core(emitters, centres, radii, diffusion, degradation, symbol_interval, memory, substeps, quad):
-    fn = partial(_one_emitter, memory=memory, substeps=substeps, quad=quad)
+@partial(jax.jit, static_argnames=("memory", "terms", "quad"))
+def _shadowed_core(emitters, centres, radii, diffusion, degradation, symbol_interval, memory, terms, quad):
+    fn = partial(_one_emitter_laplace, memory=memory, terms=terms, quad=quad)
     return jax.vmap(lambda e: fn(e, centres, radii, diffusion, degradation, symbol_interval))(emitters)
 
 
@@ -132,7 +88,7 @@ def _is_concrete(*values) -> bool:
     return not any(isinstance(v, jax.core.Tracer) for v in values)
 
 
-def _check_inputs(emitters, centres, radii, diffusion, degradation, symbol_interval, memory, substeps):
+def _check_inputs(emitters, centres, radii, diffusion, degradation, symbol_interval, memory, terms):
     if emitters.ndim != 2 or emitters.shape[1] != 3:
         raise InputError("emitters", emitters.shape, "must have shape (E, 3) in metres", "pass an (E, 3) array")
     if centres.ndim != 2 or centres.shape[1] != 3:
@@ -141,8 +97,8 @@ def _check_inputs(emitters, centres, radii, diffusion, degradation, symbol_inter
         raise InputError("radii", radii.shape, f"must have shape ({centres.shape[0]},)", "one radius per centre")
     if not isinstance(memory, (int, np.integer)) or memory < 0:
         raise InputError("memory", memory, "must be a non-negative int", "give the number of lags kept, e.g. 10")
-    if not isinstance(substeps, (int, np.integer)) or substeps < 1:
-        raise InputError("substeps", substeps, "must be a positive int", f"use e.g. {DEFAULT_SUBSTEPS}")
+    if not isinstance(terms, (int, np.integer)) or terms < 8:
+        raise InputError("terms", terms, "must be an int >= 8", f"use e.g. {DEFAULT_TERMS}")
     if not _is_concrete(emitters, centres, radii, diffusion, degradation, symbol_interval):
         return  # values are traced: checked by the caller's concrete call, if any
     e, c, r = np.asarray(emitters), np.asarray(centres), np.asarray(radii)
@@ -170,7 +126,7 @@ def _check_inputs(emitters, centres, radii, diffusion, degradation, symbol_inter
 
 
 def shadowed_hits(emitters, centres, radii, diffusion, degradation, symbol_interval, memory: int, *,
-                  substeps: int = DEFAULT_SUBSTEPS):
+                  terms: int = DEFAULT_TERMS):
     """Slot hit probabilities of several absorbing spheres that shadow each other (renewal model).
 
     Parameters
@@ -195,10 +151,10 @@ def shadowed_hits(emitters, centres, radii, diffusion, degradation, symbol_inter
     emitters = jnp.asarray(emitters, dtype=jnp.float64)
     centres = jnp.asarray(centres, dtype=jnp.float64)
     radii = jnp.asarray(radii, dtype=jnp.float64)
-    _check_inputs(emitters, centres, radii, diffusion, degradation, symbol_interval, memory, substeps)
+    _check_inputs(emitters, centres, radii, diffusion, degradation, symbol_interval, memory, terms)
     args = [jnp.asarray(v, dtype=jnp.float64) for v in (diffusion, degradation, symbol_interval)]
-    return _shadowed_core(emitters, centres, radii, *args, memory=int(memory), substeps=int(substeps),
-                          quad=(N_POLAR, N_AZIMUTH, N_SOURCE_TIME))
+    return _shadowed_core(emitters, centres, radii, *args, memory=int(memory), terms=int(terms),
+                          quad=(N_POLAR, N_AZIMUTH, N_ORDERS))
 
 
 def validity_notes(emitters, centres, radii, diffusion, degradation) -> list[str]:
