@@ -53,7 +53,6 @@ class Config(NamedTuple):
     buffer: int  # molecules advanced together
     memory: int  # L
     keep_positions: int  # capacity of the survivors' position store (0: none)
-    block: int  # iterations per call
 
 
 class Geometry(NamedTuple):
@@ -254,13 +253,13 @@ def _iteration(cfg: Config, geom: Geometry, s: State) -> State:
 
 
 @partial(jax.jit, static_argnums=0)
-def advance(cfg: Config, geom: Geometry, state: State) -> State:
-    """Run at most ``cfg.block`` iterations, stopping early when every molecule is finished."""
+def advance(cfg: Config, geom: Geometry, state: State, n_iter) -> State:
+    """Run at most ``n_iter`` (traced int) iterations, stopping early when every molecule is finished."""
 
     def cond(carry):
         i, s = carry
         busy = jnp.any(s.mid >= 0) | (s.next_id < geom.n_total)
-        return (i < cfg.block) & busy
+        return (i < n_iter) & busy
 
     def body(carry):
         i, s = carry

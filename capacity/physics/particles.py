@@ -171,7 +171,8 @@ def _simulate(
     correction : ``"radial"`` (exact one-sphere bridge), ``"planar"`` (``exp(-d1 d2/(D h))``) or ``"none"``
         (naive step-and-check).
     keep_positions : return the survivors' final positions.
-    buffer, block : molecules advanced together and iterations per kernel call.
+    buffer, block : molecules advanced together (static: a new value compiles a new kernel) and iterations per
+        kernel call (traced).
     """
     inp = check_inputs(
         emitters, centres, radii, passive, sample_offsets, diffusion, degradation, symbol_interval, memory,
@@ -191,8 +192,8 @@ def _simulate(
         buffer=int(buffer),
         memory=inp.memory,
         keep_positions=inp.particles if keep_positions else 0,
-        block=int(block),
     )
+    n_iter = jnp.asarray(int(block), jnp.int64)
     counts = np.zeros((n_emit, n_sph, n_lag))
     tail = np.zeros((n_emit, n_sph))
     steps = np.zeros(n_emit, np.int64)
@@ -224,7 +225,7 @@ def _simulate(
         state = _k.initial_state(cfg, geom, n_pad)
         done_before = 0
         while True:
-            state = _k.advance(cfg, geom, state)
+            state = _k.advance(cfg, geom, state, n_iter)
             done_now = int(state.next_id) - int(jnp.sum(state.mid >= 0))
             if bar is not None:
                 bar.update(done_now - done_before)
