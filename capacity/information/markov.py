@@ -94,7 +94,7 @@ def _mean_cost(q, b):
 
 
 def markov_rate(hits, background, symbols, *, order=None, interference=None, n_symbols: int = 10_000,
-                n_iter: int = 15, seed: int = 0, cost=None, budget=None, max_states: int = 256,
+                n_iter: int = 30, seed: int = 0, cost=None, budget=None, max_states: int = 256,
                 n_runs: int = 8, final_symbols: int | None = None) -> tuple[RateResult, np.ndarray]:
     """Rate (bits/symbol) of an optimised Markov source and its transition law (S^order, S).
 
@@ -104,7 +104,8 @@ def markov_rate(hits, background, symbols, *, order=None, interference=None, n_s
         Alphabet); interference : optional (R,) extra constant mean counts.
     order : source memory M (symbols); default L; must be >= L (the source state must contain the channel
         state) and S^M <= max_states.
-    n_symbols : simulated symbols per iteration; n_iter : iterations of the generalised Blahut–Arimoto update.
+    n_symbols : simulated symbols per iteration; n_iter : iterations of the generalised Blahut–Arimoto update
+        (convergence is like Blahut–Arimoto's, slow where optimal masses are near zero: use tens of iterations).
     cost : (S,) cost per symbol (default: molecules per symbol, all emitters); budget : largest mean cost per
         symbol (None: unconstrained).
     n_runs, final_symbols : runs and symbols per run of the final forward-recursion estimate (fresh seed).
@@ -125,7 +126,7 @@ def markov_rate(hits, background, symbols, *, order=None, interference=None, n_s
                          "raise max_states; the i.i.d. rate (information_rate) has no such limit")
     if int(n_iter) < 1 or int(n_symbols) < 10:
         raise InputError("n_iter/n_symbols", (n_iter, n_symbols), "need n_iter >= 1 and n_symbols >= 10",
-                         "use e.g. n_iter=15, n_symbols=10000")
+                         "use e.g. n_iter=30, n_symbols=10000")
     b = sym.sum(axis=1) if cost is None else np.asarray(cost, dtype=float)
     if b.shape != (S,) or not np.all(np.isfinite(b)) or np.any(b < 0):
         raise InputError("cost", cost, f"must be {S} finite non-negative costs", "give one cost per symbol")
