@@ -95,9 +95,12 @@ def _lone_arrays(lay: Layout, memory: int):
     return np.asarray(hits, dtype=np.float64), np.asarray(tail, dtype=np.float64)
 
 
-def auto_memory(lay: Layout, tolerance: float) -> int:
-    """Smallest L such that every slot after L is <= tolerance x the pair's peak slot (lone model, <= MEMORY_CAP)."""
-    hits, _ = _lone_arrays(lay, MEMORY_CAP)
+def auto_memory(lay: Layout, tolerance: float):
+    """Smallest L such that every slot after L is <= tolerance x the pair's peak slot (lone model, <= MEMORY_CAP).
+
+    Returns ``(L, hits, tail)`` with the lone hits (E, R, MEMORY_CAP+1) and tail (E, R) it was decided from.
+    """
+    hits, tail = _lone_arrays(lay, MEMORY_CAP)
     peak = hits.max(axis=-1, keepdims=True)
     above = hits > tolerance * peak
     lags = np.arange(hits.shape[-1])
@@ -107,19 +110,40 @@ def auto_memory(lay: Layout, tolerance: float) -> int:
         raise InputError("channel.memory", "auto",
                          f"emitter {i} -> receiver {j} is still above {tolerance:g} x its peak after {MEMORY_CAP} lags",
                          "lengthen channel.symbol_interval, raise channel.memory_tolerance, or give memory explicitly")
-    return int(last.max())
+    return int(last.max()), hits, tail
+
+
+def _truncate(hits, tail, memory: int):
+    """Lone response at a shorter memory from a longer one: the dropped slots join the tail (a sum of positives)."""
+    return hits[..., : memory + 1].copy(), tail + hits[..., memory + 1:].sum(axis=-1)
+
+
+class _Lone:
+    """Lone hits at a given memory, computed once (or cut from the MEMORY_CAP run of memory "auto")."""
+
+    def __init__(self, lay: Layout, longer=None):
+        self.lay, self.longer = lay, longer
+
+    def __call__(self, memory: int):
+        if self.longer is None or memory >= self.longer[0].shape[-1]:
+            self.longer = _lone_arrays(self.lay, memory)
+        return _truncate(*self.longer, memory)
 
 
 # ------------------------------------------------------------------------------------------- the models
-def _lone(lay: Layout, memory: int, options: dict):
-    hits, tail = _lone_arrays(lay, memory)
+def _lone(lay: Layout, memory: int, options: dict, lone):
+    hits, tail = lone(memory)
     return hits, tail, None, ["lone model: every receiver treated as if alone (no shadowing between receivers)"]
 
 
-def _shadowed(lay: Layout, memory: int, options: dict):
+def _shadowed(lay: Layout, memory: int, options: dict, lone):
     from capacity.physics.shadowed import shadowed_hits, validity_notes
 
-    hits, tail = _lone_arrays(lay, memory)
+    shape = (lay.emitters.shape[0], lay.centres.shape[0])
+    hits, tail = np.zeros(shape + (memory + 1,)), np.zeros(shape)
+    if lay.passive.any():
+        lone_hits_, lone_tail = lone(memory)
+        hits[:, lay.passive], tail[:, lay.passive] = lone_hits_[:, lay.passive], lone_tail[:, lay.passive]
     notes = []
     absorbing = np.flatnonzero(~lay.passive)
     if absorbing.size:
@@ -157,7 +181,7 @@ def particle_step_count(lay: Layout, memory: int, time_step: float | None) -> fl
     return (memory + 1) * lay.symbol_interval / dt
 
 
-def _particles(lay: Layout, memory: int, options: dict):
+def _particles(lay: Layout, memory: int, options: dict, lone):
     from capacity.physics.particles import simulate_hits
 
     steps = particle_step_count(lay, memory, options["time_step"])
@@ -174,7 +198,7 @@ def _particles(lay: Layout, memory: int, options: dict):
     hits, tail = np.array(hits, dtype=np.float64), np.array(tail, dtype=np.float64)
     notes = [f"particles model: {int(options['particles'])} molecules per emitter, seed {int(options['seed'])}"]
     if lay.passive.any():
-        _, lone_tail = _lone_arrays(lay, memory)
+        _, lone_tail = lone(memory)
         tail[:, lay.passive] = lone_tail[:, lay.passive]
         notes.append("passive tails (samples after lag L) from the lone closed form")
     return hits, tail, np.asarray(stderr, dtype=np.float64), notes
@@ -212,7 +236,8 @@ def channel_response(scenario, model=None, *, memory=None, particles=None, seed=
         if not (0.0 < tol < 1.0):
             raise InputError("channel.memory_tolerance", ch.memory_tolerance, "must lie in (0, 1)",
                              "give e.g. 0.01")
-        lags = auto_memory(lay, tol)
+        lags, cap_hits, cap_tail = auto_memory(lay, tol)
+        lone = _Lone(lay, (cap_hits, cap_tail))
         notes.append(f"memory auto: L = {lags} lags (smallest with every later slot <= {tol:g} x the pair's "
                      f"largest slot, decided from the lone model)")
     else:
@@ -220,12 +245,13 @@ def channel_response(scenario, model=None, *, memory=None, particles=None, seed=
             raise InputError("channel.memory", setting, "must be a whole number >= 0 or 'auto'",
                              "give e.g. memory = 10")
         lags = int(setting)
+        lone = _Lone(lay)
         notes.append(f"memory: L = {lags} lags (given)")
     options = {"particles": ch.particles if particles is None else particles,
                "seed": ch.seed if seed is None else seed,
                "time_step": ch.time_step if time_step is None else time_step,
                "progress": progress}
-    hits, tail, stderr, model_notes = MODELS[name](lay, lags, options)
+    hits, tail, stderr, model_notes = MODELS[name](lay, lags, options, lone)
     i, j = np.unravel_index(int(np.argmax(tail)), tail.shape)
     notes.append(f"largest tail mass beyond lag {lags}: {tail[i, j]:.3g} ({lay.emitter_names[i]} -> "
                  f"{lay.receiver_names[j]})")

@@ -1,0 +1,111 @@
+"""channel_response: model table, memory choice, overrides and errors (outside references named beside checks)."""
+
+import numpy as np
+import pytest
+from scipy import special
+
+from capacity.errors import InputError
+from capacity.physics.response import MEMORY_CAP, channel_response
+from capacity.scenario.types import Channel, Emitter, Medium, Receiver, Scenario
+
+D = 79.4e-12
+
+
+def scenario(**channel):
+    settings = dict(symbol_interval=0.3, memory_tolerance=0.05, response="lone")
+    settings.update(channel)
+    return Scenario(
+        name="two emitters, three receivers",
+        medium=Medium(diffusion=D),
+        emitters=(Emitter("left", (0.0, 0.0, 0.0)), Emitter("up", (0.0, 12e-6, 0.0))),
+        receivers=(Receiver("near", (11e-6, 0.0, 0.0), 5e-6),
+                   Receiver("far", (-14e-6, -6e-6, 0.0), 4e-6),
+                   Receiver("probe", (3e-6, 20e-6, 0.0), 4e-6, kind="passive", sample_offset=0.1)),
+        channel=Channel(**settings),
+    )
+
+
+def gap(sc, i, j):
+    return np.linalg.norm(sc.emitter_positions[i] - sc.receiver_centres[j]) - sc.receiver_radii[j]
+
+
+def test_lone_response_shapes_values_and_notes():
+    sc = scenario(memory=5)
+    res = channel_response(sc)
+    assert res.model == "lone" and res.stderr is None and res.memory == 5
+    assert res.hits.shape == (2, 3, 6) and res.tail.shape == (2, 3)
+    assert res.hits.dtype == np.float64 and isinstance(res.hits, np.ndarray) and isinstance(res.tail, np.ndarray)
+    np.testing.assert_allclose(res.slot_edges, 0.3 * np.arange(7), rtol=0, atol=1e-15)
+    for i in range(2):
+        for j in range(2):
+            d, r = gap(sc, i, j), sc.receiver_radii[j]
+            # eventual capture r/(r+d) (Yilmaz et al. 2014); first slot r/(r+d) erfc(d/sqrt(4 D Ts))
+            assert res.hits[i, j].sum() + res.tail[i, j] == pytest.approx(r / (r + d), rel=1e-13)
+            assert res.hits[i, j, 0] == pytest.approx(r / (r + d) * special.erfc(d / np.sqrt(4 * D * 0.3)), rel=1e-13)
+        # passive receiver sampled at l Ts + 0.1 s (erfc form, reference sheet)
+        rho, a, t = np.linalg.norm(sc.emitter_positions[i] - sc.receiver_centres[2]), 4e-6, 0.1
+        s = np.sqrt(4 * D * t)
+        p0 = 0.5 * (special.erfc((rho - a) / s) - special.erfc((rho + a) / s)) - np.sqrt(D * t / np.pi) / rho * (
+            np.exp(-(rho - a) ** 2 / s**2) - np.exp(-(rho + a) ** 2 / s**2))
+        assert res.hits[i, 2, 0] == pytest.approx(p0, rel=1e-12)
+    assert any("L = 5" in n for n in res.notes)
+    assert any("largest tail mass" in n and f"{res.tail.max():.3g}" in n for n in res.notes)
+
+
+def test_memory_auto_is_the_smallest_meeting_the_tolerance():
+    sc = scenario()  # memory "auto", tolerance 0.05
+    res = channel_response(sc)
+    L = res.memory
+    assert 0 < L < MEMORY_CAP
+    assert any(f"L = {L}" in n and "0.05" in n for n in res.notes)
+    longer = channel_response(sc, memory=MEMORY_CAP)  # explicit override, far beyond L
+    peak = longer.hits.max(axis=-1)
+    assert np.all(longer.hits[..., L + 1:] <= 0.05 * peak[..., None])  # L meets the tolerance
+    assert np.any(longer.hits[..., L] > 0.05 * peak)  # L - 1 does not
+    np.testing.assert_allclose(res.hits, longer.hits[..., : L + 1], rtol=1e-14)
+    # absorbing tail in complementary form: r/(r+d) erf(d / sqrt(4 D (L+1) Ts)) (Yilmaz et al. 2014)
+    for i in range(2):
+        for j in range(2):
+            d, r = gap(sc, i, j), sc.receiver_radii[j]
+            expected = r / (r + d) * special.erf(d / np.sqrt(4 * D * (L + 1) * 0.3))
+            assert res.tail[i, j] == pytest.approx(expected, rel=1e-12)
+    # passive tail: the longer run's tail plus the slots between (a plain sum)
+    np.testing.assert_allclose(res.tail[:, 2], longer.tail[:, 2] + longer.hits[:, 2, L + 1:].sum(-1), rtol=1e-12)
+
+
+def test_bad_requests_raise_input_errors():
+    sc = scenario(memory=3)
+    with pytest.raises(InputError, match="unknown response model"):
+        channel_response(sc, "psychic")
+    with pytest.raises(InputError, match="channel.memory"):
+        channel_response(sc, memory="soon")
+    with pytest.raises(InputError, match="channel.memory"):
+        channel_response(sc, memory=-2)
+    with pytest.raises(InputError, match="channel.memory_tolerance"):
+        channel_response(scenario(memory_tolerance=1.5))
+    inside = sc.replace(emitters=(Emitter("in", (12e-6, 0.0, 0.0)),))
+    with pytest.raises(InputError, match=r"emitter\[0\]"):
+        channel_response(inside)
+    late = sc.replace(receivers=(Receiver("p", (0.0, 9e-6, 0.0), 2e-6, kind="passive", sample_offset=0.5),))
+    with pytest.raises(InputError, match="sample_offset"):
+        channel_response(late)
+    with pytest.raises(InputError, match="medium.diffusion"):
+        channel_response(sc.replace(medium=Medium(diffusion=-1.0)))
+
+
+def test_shadowed_dispatch_keeps_passive_lone_and_reorders():
+    shadowed = pytest.importorskip("capacity.physics.shadowed")
+    if not hasattr(shadowed, "validity_notes"):
+        pytest.skip("shadowed.validity_notes not written yet")
+    sc = scenario(memory=5, response="shadowed")
+    res = channel_response(sc)
+    lone = channel_response(sc, "lone")
+    assert res.model == "shadowed" and res.hits.shape == (2, 3, 6)
+    np.testing.assert_array_equal(res.hits[:, 2], lone.hits[:, 2])  # passive: lone closed form
+    assert any("ignore absorption" in n for n in res.notes)
+    # the absorbing receivers, in scenario order, equal shadowed_hits on the absorbing subset
+    h, t = shadowed.shadowed_hits(sc.emitter_positions, sc.receiver_centres[:2], sc.receiver_radii[:2], D, 0.0,
+                                  0.3, 5)
+    np.testing.assert_allclose(res.hits[:, :2], np.asarray(h), rtol=1e-13)
+    # shadowing only removes molecules: each absorbing receiver catches at most its lone eventual capture
+    assert np.all(res.hits[:, :2].sum(-1) + res.tail[:, :2] <= lone.hits[:, :2].sum(-1) + lone.tail[:, :2] + 1e-12)
