@@ -23,7 +23,8 @@ on them exactly. One iteration advances every molecule of the buffer by one step
 * **Passive spheres** do not interact; a molecule whose step ends on a sampling instant of passive sphere ``j``
   adds one count to ``(j, slot)`` if it is inside.
 * **Finish.** Absorbed, dead, or alive at the horizon (then its lone eventual-capture probabilities are added to
-  the tail accumulator and, optionally, its position is stored). Freed buffer places take the next molecules.
+  the tail accumulators and, for the first ``store`` molecules, its position is stored). Freed buffer places
+  take the next molecules.
 
 Randomness: a counter-based SplitMix64 hash (Steele, Lea & Flood, "Fast splittable pseudorandom number
 generators", OOPSLA 2014). Emitter ``i`` has the key ``base = mix64(mix64(seed) + golden * (i + 1))``; molecule
@@ -52,7 +53,7 @@ class Config(NamedTuple):
 
     buffer: int  # molecules advanced together
     memory: int  # L
-    keep_positions: int  # capacity of the survivors' position store (0: none)
+    store: int  # survivors among molecules 0..store-1 have their final positions stored
 
 
 class Geometry(NamedTuple):
@@ -88,12 +89,12 @@ class State(NamedTuple):
     survivors: jax.Array  # () int64 molecules alive at the horizon
     steps: jax.Array  # () int64 steps taken by real molecules
     ticks: jax.Array  # () float64 simulated time of real molecules, in ticks (= steps a fixed-step run needs)
-    positions: jax.Array  # (N or 1, 3) final positions of survivors (NaN otherwise)
+    tail_sq: jax.Array  # (R,) float64 sum of squares of the survivors' lone capture probabilities
+    positions: jax.Array  # (store, 3) final positions of stored survivors (NaN otherwise)
 
 
 def initial_state(cfg: Config, geom: Geometry, n_spheres: int) -> State:
     c = cfg.buffer
-    n_pos = max(cfg.keep_positions, 1)
     return State(
         x=jnp.broadcast_to(geom.emitter, (c, 3)),
         t=jnp.zeros(c, jnp.int64),
@@ -107,7 +108,8 @@ def initial_state(cfg: Config, geom: Geometry, n_spheres: int) -> State:
         survivors=jnp.zeros((), jnp.int64),
         steps=jnp.zeros((), jnp.int64),
         ticks=jnp.zeros(()),
-        positions=jnp.full((n_pos, 3), jnp.nan),
+        tail_sq=jnp.zeros(n_spheres),
+        positions=jnp.full((cfg.store, 3), jnp.nan),
     )
 
 
@@ -218,10 +220,8 @@ def _iteration(cfg: Config, geom: Geometry, s: State) -> State:
     root = jnp.sqrt(geom.degradation / geom.diffusion)
     lone = geom.radii / r2 * jnp.exp(-jnp.maximum(d2, 0.0) * root)
     lone = jnp.where(geom.absorbing[None, :] & at_horizon[:, None], lone, 0.0)
-    positions = s.positions
-    if cfg.keep_positions:
-        idx = jnp.where(at_horizon, s.mid, cfg.keep_positions)
-        positions = positions.at[idx].set(x2, mode="drop")
+    idx = jnp.where(at_horizon & (s.mid < cfg.store), s.mid, cfg.store)
+    positions = s.positions.at[idx].set(x2, mode="drop")
     keep = alive & ~at_horizon
 
     # refill freed places with the next molecules (skipped when nothing is waiting)
@@ -245,6 +245,7 @@ def _iteration(cfg: Config, geom: Geometry, s: State) -> State:
         next_id=jnp.minimum(s.next_id + n_free, geom.n_total),
         counts=counts,
         tail=s.tail + jnp.sum(lone, axis=0),
+        tail_sq=s.tail_sq + jnp.sum(lone * lone, axis=0),
         survivors=s.survivors + jnp.sum(at_horizon.astype(jnp.int64)),
         steps=s.steps + jnp.sum(active.astype(jnp.int64)),
         ticks=s.ticks + jnp.sum(jnp.where(active, h_ticks, 0.0)),

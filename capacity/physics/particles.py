@@ -28,6 +28,7 @@ import numpy as np
 from capacity import _jax  # noqa: F401  (float64)
 from capacity.physics import _particles_kernel as _k
 from capacity.physics._particles_checks import auto_time_step, check_inputs
+from capacity.physics._particles_tail import passive_tail
 
 #: Adaptive step constant c: a molecule at distance d from the nearest absorbing surface takes a step of about
 #: d^2 / (c D), i.e. a displacement of about d * sqrt(6/c) (3-D rms). Chosen by measurement against the exact
@@ -38,6 +39,8 @@ ADAPT = 16.0
 BUFFER = 2048
 #: Kernel iterations per call (one progress-bar update per call).
 BLOCK = 512
+#: Survivors among the first STORE molecules of each emitter keep their final positions (passive tails, tests).
+STORE = 1 << 15
 
 
 class Simulation(NamedTuple):
@@ -47,8 +50,9 @@ class Simulation(NamedTuple):
     time_step : base step dt (s); slot = ``n_slot`` steps.
     n_slot : steps per slot.
     offsets : (R,) sampling offsets actually used, seconds (rounded to whole steps).
-    survivor_positions : list over emitters of (S_i, 3) arrays, metres, of the molecules still free at the
-        horizon (only when asked for; else empty arrays).
+    tail_stderr : (E, R) standard error of ``tail`` (sample standard deviation of the per-molecule terms / sqrt(n)).
+    survivor_positions : list over emitters of (S_i, 3) arrays, metres: final positions of the molecules still
+        free at the horizon among the first ``min(N, STORE)`` molecules.
     steps : (E,) number of molecule-steps actually taken.
     ticks : (E,) simulated molecule-time in base steps: the molecule-steps a fixed-step run of the same
         molecules would need (absorbed and degraded molecules stop counting).
@@ -61,6 +65,7 @@ class Simulation(NamedTuple):
     time_step: float
     n_slot: int
     offsets: np.ndarray
+    tail_stderr: np.ndarray
     survivor_positions: list
     steps: np.ndarray
     ticks: np.ndarray
@@ -117,7 +122,10 @@ def simulate_hits(
         ``(1/N) sum_{survivors} a_j/|x-c_j| * exp(-(|x-c_j| - a_j) sqrt(k/D))`` from each survivor's final
         position ``x`` (the lone eventual-capture probability). It ignores shadowing after the horizon (every
         sphere is treated as if alone), so it over-estimates the tail when spheres hide each other.
-        Passive spheres: 0 (not estimated; the lone closed form gives their later samples).
+        Passive spheres: the expected sum of all later samples, ``sum_{l > L} P(inside at l Ts + offset)``,
+        from the final positions of the survivors among the first ``STORE`` molecules, with the free-space
+        occupancy law (absorbing spheres ignored after the horizon, far terms by the far-field form; see
+        :mod:`capacity.physics._particles_tail`).
     stderr : (E, R, L+1), ``sqrt(p (1-p) / N)`` (each molecule is one Bernoulli trial per slot).
 
     Raises
@@ -161,7 +169,6 @@ def _simulate(
     progress=False,
     adapt: float = ADAPT,
     correction: str = "radial",
-    keep_positions: bool = False,
     buffer: int = BUFFER,
     block: int = BLOCK,
 ) -> Simulation:
@@ -170,7 +177,6 @@ def _simulate(
     adapt : c of the adaptive rule (step ~ d^2/(c D)); 0 gives fixed steps of ``dt`` everywhere.
     correction : ``"radial"`` (exact one-sphere bridge), ``"planar"`` (``exp(-d1 d2/(D h))``) or ``"none"``
         (naive step-and-check).
-    keep_positions : return the survivors' final positions.
     buffer, block : molecules advanced together (static: a new value compiles a new kernel) and iterations per
         kernel call (traced).
     """
@@ -191,11 +197,12 @@ def _simulate(
     cfg = _k.Config(
         buffer=int(buffer),
         memory=inp.memory,
-        keep_positions=inp.particles if keep_positions else 0,
+        store=STORE,
     )
     n_iter = jnp.asarray(int(block), jnp.int64)
     counts = np.zeros((n_emit, n_sph, n_lag))
     tail = np.zeros((n_emit, n_sph))
+    tail_se = np.zeros((n_emit, n_sph))
     steps = np.zeros(n_emit, np.int64)
     ticks = np.zeros(n_emit)
     survivors = np.zeros(n_emit, np.int64)
@@ -233,15 +240,20 @@ def _simulate(
             if _k.finished(inp.particles, state):
                 break
         counts[i] = np.asarray(state.counts, dtype=np.float64)[:n_sph]
-        tail[i] = np.asarray(state.tail)[:n_sph]
+        n = float(inp.particles)
+        tail[i] = np.asarray(state.tail)[:n_sph] / n
+        second = np.asarray(state.tail_sq)[:n_sph] / n
+        tail_se[i] = np.sqrt(np.maximum(second - tail[i] ** 2, 0.0) / n)
         steps[i] = int(state.steps)
         ticks[i] = float(state.ticks)
         survivors[i] = int(state.survivors)
-        if keep_positions:
-            pos = np.asarray(state.positions)
-            positions.append(pos[np.isfinite(pos[:, 0])])
-        else:
-            positions.append(np.zeros((0, 3)))
+        pos = np.asarray(state.positions)
+        positions.append(pos[np.isfinite(pos[:, 0])])
+        for j in np.flatnonzero(inp.passive):
+            tail[i, j], tail_se[i, j] = passive_tail(
+                positions[-1], min(inp.particles, STORE), inp.centres[j], inp.radii[j], offsets[j] * dt,
+                inp.symbol_interval, inp.diffusion, inp.degradation,
+            )
     if bar is not None:
         bar.close()
     # passive spheres sampled at t = 0 (offset 0, slot 0): inside iff the emitter is inside
@@ -250,9 +262,8 @@ def _simulate(
         counts[:, j, 0] = np.where(inside, float(inp.particles), 0.0)
     n = float(inp.particles)
     hits = counts / n
-    tail = np.where(inp.passive[None, :], 0.0, tail / n)
     stderr = np.sqrt(hits * (1.0 - hits) / n)
-    return Simulation(hits, tail, stderr, dt, n_slot, offsets * dt, positions, steps, ticks, survivors)
+    return Simulation(hits, tail, stderr, dt, n_slot, offsets * dt, tail_se, positions, steps, ticks, survivors)
 
 
 def _pow2_at_least(n: int) -> int:
