@@ -203,7 +203,10 @@ def constrain(space: DesignSpace, u: dict) -> dict:
 
 
 def unconstrain(space: DesignSpace, phys: dict) -> dict:
-    """Inverse of :func:`constrain` (numpy in, JAX out); values on a bound are nudged inside by 1e-9."""
+    """Inverse of :func:`constrain` (numpy in, JAX out).
+
+    Values on a bound are nudged inside by 1e-3 of the range, so that the sigmoid is not saturated.
+    """
     out = {}
     for name in space.tune:
         x = np.asarray(phys[name], dtype=float)
@@ -213,12 +216,12 @@ def unconstrain(space: DesignSpace, phys: dict) -> dict:
                 t = (np.log(x) - np.log(lo)) / (np.log(hi) - np.log(lo))
             else:
                 t = (x - lo) / (hi - lo)
-            t = np.clip(t, 1e-9, 1 - 1e-9)
+            t = np.clip(t, 1e-3, 1 - 1e-3)
             out[name] = jnp.asarray(np.log(t) - np.log1p(-t))
         elif name in ("symbol_interval", "radius"):
             out[name] = jnp.asarray(np.log(x))
         elif name == "levels":
-            t = np.clip(x / space.peak, 1e-9, 1 - 1e-9)
+            t = np.clip(x / space.peak, 1e-3, 1 - 1e-3)
             out[name] = jnp.asarray(np.log(t) - np.log1p(-t))
         elif name == "split":
             out[name] = jnp.asarray(np.log(np.maximum(x, 1e-300)))
