@@ -13,35 +13,33 @@ identity; plain Monte Carlo for the estimate).
 
 from __future__ import annotations
 
-from functools import partial
-
 import jax
-import jax.numpy as jnp
 import numpy as np
-from jax import lax
-from jax.scipy.special import logsumexp, xlogy
+from scipy.special import logsumexp, xlogy
 
 from capacity.errors import InputError
 from capacity.information.result import RateResult
+from capacity.information.trellis import poisson_counts
 
 LN2 = float(np.log(2.0))
 
 
-@partial(jax.jit, static_argnames=("n_chunks", "chunk"))
-def _samples(key, means, log_p, *, n_chunks: int, chunk: int):
-    """Per-sample information densities (nats), shape (n_chunks * chunk,)."""
-
-    def one_chunk(k):
-        kx, ky = jax.random.split(k)
-        x = jax.random.categorical(kx, log_p, shape=(chunk,))
-        mu = means[x]  # (chunk, R)
-        y = jax.random.poisson(ky, mu, shape=mu.shape).astype(jnp.float64)
+def _densities(key, means, p, n):
+    """Per-sample information densities (nats), shape (n,): x by inverse CDF, y by jax.random.poisson."""
+    kx, ky = jax.random.split(key)
+    u = np.asarray(jax.random.uniform(kx, (n,)))
+    x = np.minimum(np.searchsorted(np.cumsum(p), u, side="right"), p.size - 1)
+    y = np.asarray(poisson_counts(ky, means[x]))
+    with np.errstate(divide="ignore"):
+        log_p = np.log(p)
+    out = np.empty(n)
+    chunk = max(1, 2_000_000 // means.size)
+    for a in range(0, n, chunk):
+        yy, xx = y[a:a + chunk], x[a:a + chunk]
         # ln W(y | x') up to -ln y!, for every candidate x': (chunk, S)
-        ll = xlogy(y[:, None, :], means[None, :, :]).sum(axis=2) - means.sum(axis=1)[None, :]
-        own = jnp.take_along_axis(ll, x[:, None], axis=1)[:, 0]
-        return own - logsumexp(ll + log_p[None, :], axis=1)
-
-    return lax.map(one_chunk, jax.random.split(key, n_chunks)).reshape(-1)
+        ll = xlogy(yy[:, None, :], means[None, :, :]).sum(axis=2) - means.sum(axis=1)[None, :]
+        out[a:a + chunk] = ll[np.arange(len(xx)), xx] - logsumexp(ll + log_p[None, :], axis=1)
+    return out
 
 
 def mc_mutual_information(means, input_law, *, n_samples: int = 100_000, seed: int = 0) -> RateResult:
@@ -51,7 +49,7 @@ def mc_mutual_information(means, input_law, *, n_samples: int = 100_000, seed: i
     ----------
     means : (S, R) mean counts of each receiver for each input symbol (background included), >= 0.
     input_law : (S,) input probabilities.
-    n_samples : number of (x, y) draws (rounded up to whole chunks).
+    n_samples : number of (x, y) draws.
     seed : seed of the jax.random key.
 
     Returns a RateResult with the estimate, its standard error and a 95 % normal interval in the message.
@@ -69,12 +67,7 @@ def mc_mutual_information(means, input_law, *, n_samples: int = 100_000, seed: i
     if int(n_samples) < 2:
         raise InputError("n_samples", n_samples, "need at least 2 samples", "use e.g. n_samples=100000")
     S = mu.shape[0]
-    chunk = int(max(1, min(int(n_samples), 2_000_000 // max(S * mu.shape[1], 1))))
-    n_chunks = -(-int(n_samples) // chunk)
-    with np.errstate(divide="ignore"):
-        log_p = np.log(p / p.sum())
-    d = np.asarray(_samples(jax.random.PRNGKey(int(seed)), jnp.asarray(mu), jnp.asarray(log_p),
-                            n_chunks=n_chunks, chunk=chunk)) / LN2
+    d = _densities(jax.random.PRNGKey(int(seed)), mu, p / p.sum(), int(n_samples)) / LN2
     n = d.size
     rate = float(d.mean())
     se = float(d.std(ddof=1) / np.sqrt(n))

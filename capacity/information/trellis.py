@@ -177,17 +177,22 @@ def _poisson_flat(key, lam):
     return jax.random.poisson(key, lam, shape=lam.shape).astype(jnp.float64)
 
 
+POISSON_BLOCK = 1 << 15
+
+
 def poisson_counts(key, mean) -> jnp.ndarray:
     """Independent Poisson counts with the given means (any shape), drawn with ``jax.random.poisson``.
 
-    The means are flattened and padded to a power-of-two length so the (slow to compile) sampler is compiled
-    once per size bucket rather than once per shape.
+    The means are flattened and drawn in fixed blocks of ``POISSON_BLOCK`` (block ``i`` with key
+    ``fold_in(key, i)``), so the sampler, slow to compile, is compiled once per process rather than per shape.
     """
     mean = jnp.asarray(mean, dtype=jnp.float64)
     size = mean.size
-    bucket = max(1024, 1 << (size - 1).bit_length())
-    lam = jnp.zeros(bucket).at[:size].set(mean.reshape(-1))
-    return _poisson_flat(key, lam)[:size].reshape(mean.shape)
+    blocks = max(1, -(-size // POISSON_BLOCK))
+    lam = jnp.zeros(blocks * POISSON_BLOCK).at[:size].set(mean.reshape(-1))
+    draws = [_poisson_flat(jax.random.fold_in(key, i), lam[i * POISSON_BLOCK:(i + 1) * POISSON_BLOCK])
+             for i in range(blocks)]
+    return jnp.concatenate(draws)[:size].reshape(mean.shape)
 
 
 @partial(jax.jit, static_argnames=("n", "H", "m"))
