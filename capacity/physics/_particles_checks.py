@@ -91,7 +91,8 @@ def check_inputs(
     if time_step is not None:
         dt = _positive("time_step", time_step)
         if dt > ts:
-            raise InputError("time_step", time_step, "must not exceed symbol_interval", "use a smaller step or None")
+            raise InputError("time_step", time_step, "must not exceed symbol_interval",
+                             "use a smaller step or None")
     absorb = ~pa
     ac, ar = ce[absorb], ra[absorb]
     if ac.shape[0] > 1:

@@ -1,11 +1,11 @@
 """Private: passive-sphere tail of the particle simulator, from the survivors' final positions.
 
 After the horizon ``T = (L+1) Ts`` a surviving molecule at ``x`` is, in free space, inside a transparent sphere
-(centre ``c``, radius ``a``, ``rho = |x - c|``) at time ``T + t`` with probability (reference sheet erfc form; Noel,
-Cheung & Schober, ICC 2013 workshops, for the setting)
+(centre ``c``, radius ``a``, ``rho = |x - c|``) at time ``T + t`` with probability (reference sheet erfc form;
+Noel, Cheung & Schober, ICC 2013 workshops, for the setting)
 
-    P(rho, t) = 1/2 [erfc((rho-a)/s) - erfc((rho+a)/s)] - sqrt(Dt/pi)/rho [e^(-(rho-a)^2/s^2) - e^(-(rho+a)^2/s^2)],
-    s = sqrt(4 D t),
+    P(rho, t) = 1/2 [erfc((rho-a)/s) - erfc((rho+a)/s)]
+                - sqrt(Dt/pi)/rho [e^(-(rho-a)^2/s^2) - e^(-(rho+a)^2/s^2)],      s = sqrt(4 D t),
 
 and is still undegraded with probability ``e^(-k t)``. The passive tail of one molecule is the sum over the later
 sampling instants ``t_m = offset + (m-1) Ts``, ``m = 1, 2, ...``: the first ``n_terms`` exactly, the rest by the
