@@ -9,7 +9,7 @@ Writes into ``results/validation/`` (or ``--out``):
 * ``record.json`` - package versions, seeds, particle counts, time steps, settings, timestamps, run times.
 
 Usage: ``python studies/validate_responses.py [--quick] [--particles N] [--out DIR]``. ``--quick`` runs a fast
-smoke version (few particles, short memory) for tests.
+smoke version (two layouts, few particles, short memory) for tests.
 """
 
 from __future__ import annotations
@@ -19,6 +19,7 @@ import csv
 import datetime as dt
 import json
 import platform
+import sys
 import time
 from importlib import metadata
 from pathlib import Path
@@ -34,6 +35,8 @@ from capacity.physics import particles as particle_model  # noqa: E402
 from capacity.physics.shadowed import shadowed_hits, validity_notes  # noqa: E402
 
 UM = 1e-6
+sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
+from reference_images import image_split  # noqa: E402  (independent Kelvin image series, k = 0 only)
 
 # Our own invented layouts (micrometres). Each: emitters, centres, radii, D (m^2/s), k (1/s), Ts (s).
 LAYOUTS = {
@@ -47,6 +50,8 @@ LAYOUTS = {
                           D=1.0e-10, k=0.0, Ts=0.25),
     "close_spacing": dict(emitters=[(0, 0, 0)], centres=[(12, 4.6, 0), (12, -4.6, 0)], radii=[4, 4],
                           D=1.0e-10, k=0.0, Ts=0.2),
+    "emitter_near_receiver": dict(emitters=[(0, 0, 0)], centres=[(6, 0, 0), (14, 7, 0)], radii=[4, 4],
+                                  D=1.0e-10, k=0.0, Ts=0.1),
     "degradation_two_emitters": dict(emitters=[(0, 0, 0), (10, 14, 0)], centres=[(12, 0, 0), (22, 5, 0)],
                                      radii=[4, 4], D=1.0e-10, k=2.0, Ts=0.2),
 }
@@ -83,11 +88,13 @@ def _plot(path: Path, name: str, spec: dict, model: np.ndarray, sim: np.ndarray,
     plt.close(fig)
 
 
-def run(out: Path, particles: int, memory: int, seed: int) -> dict:
+def run(out: Path, particles: int, memory: int, seed: int, layouts: dict | None = None) -> dict:
+    """Compare both models on ``layouts`` (default: all of :data:`LAYOUTS`) and write the outputs into ``out``."""
+    layouts = LAYOUTS if layouts is None else layouts
     out.mkdir(parents=True, exist_ok=True)
     started = dt.datetime.now(dt.timezone.utc).isoformat()
     rows, summary, record_layouts = [], [], {}
-    for index, (name, spec) in enumerate(LAYOUTS.items()):
+    for index, (name, spec) in enumerate(layouts.items()):
         e = np.array(spec["emitters"], dtype=float) * UM
         c = np.array(spec["centres"], dtype=float) * UM
         r = np.array(spec["radii"], dtype=float) * UM
@@ -111,14 +118,22 @@ def run(out: Path, particles: int, memory: int, seed: int) -> dict:
                 l_max = int(np.argmax(slot_err[i, j]))
                 rows.append(dict(layout=name, emitter=i, receiver=j, particles_total=f"{tot_s[i, j]:.5f}",
                                  model_total=f"{tot_m[i, j]:.5f}", total_se=f"{tot_se[i, j]:.5f}",
-                                 total_rel_error=f"{rel[i, j]:+.4f}", total_rel_se=f"{tot_se[i, j] / safe[i, j]:.4f}",
+                                 total_rel_error=f"{rel[i, j]:+.4f}",
+                                 total_rel_se=f"{tot_se[i, j] / safe[i, j]:.4f}",
                                  max_slot_abs_error=f"{slot_err[i, j, l_max]:.5f}", at_slot=l_max,
                                  slot_se=f"{se[i, j, l_max]:.5f}"))
         summary.append(dict(layout=name, max_total_rel_error=f"{np.nanmax(np.abs(rel)):.4f}",
                             total_rel_se_at_worst=f"{(tot_se / safe).flat[np.nanargmax(np.abs(rel))]:.4f}",
                             max_slot_abs_error=f"{slot_err.max():.5f}", max_slot_se=f"{se.max():.5f}",
                             notes="; ".join(validity_notes(e, c, r, spec["D"], spec["k"])) or "-"))
+        eventual = (model.sum(-1) + np.asarray(model_tail))
+        kelvin = None
+        if spec["k"] == 0.0:
+            images = np.stack([image_split(x, c, r, tol=1e-10) for x in e])
+            kelvin = dict(model_eventual=eventual.tolist(), images_eventual=images.tolist(),
+                          relative_error=((eventual - images) / images).tolist())
         record_layouts[name] = dict(spec, seed=seed + index, model_seconds=round(t_model, 2),
+                                    eventual_vs_kelvin_images=kelvin,
                                     particle_seconds=round(t_sim, 2),
                                     model_tail=np.asarray(model_tail).tolist(),
                                     particle_tail_lone_estimate=np.asarray(sim_tail).tolist())
@@ -164,7 +179,8 @@ def main(argv=None) -> None:
     args = parser.parse_args(argv)
     particles = args.particles or (500 if args.quick else 100_000)
     memory = args.memory if args.memory is not None else (3 if args.quick else 12)
-    run(args.out, particles, memory, args.seed)
+    layouts = dict(list(LAYOUTS.items())[:2]) if args.quick else LAYOUTS
+    run(args.out, particles, memory, args.seed, layouts)
 
 
 if __name__ == "__main__":

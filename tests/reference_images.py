@@ -3,9 +3,9 @@
 Source: classical electrostatics of grounded spheres (method of images; see references.md, "Several absorbing
 spheres"). The probability that a Brownian molecule from ``x0`` is eventually absorbed by sphere ``j`` (before any
 other sphere) equals minus the charge induced on grounded sphere ``j`` by a unit point charge at ``x0`` (Green's
-reciprocity). A charge ``q`` at ``p`` has the image ``-q a_j/|p - c_j|`` at ``c_j + a_j^2 (p - c_j)/|p - c_j|^2`` in
-sphere ``j``; imaging every new image in every *other* sphere and summing the images inside each sphere converges
-geometrically. Plain numpy, no code shared with the package (no degradation: steady Laplace problem only).
+reciprocity). A charge ``q`` at ``p`` has the image ``-q a_j/|p - c_j|`` at ``c_j + a_j^2 (p - c_j)/|p - c_j|^2``
+in sphere ``j``; imaging every new image in every *other* sphere and summing the images inside each sphere
+converges geometrically. Plain numpy, no code shared with the package (no degradation: steady Laplace problem only).
 """
 
 from __future__ import annotations

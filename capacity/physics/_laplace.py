@@ -34,18 +34,23 @@ import numpy as np
 from capacity.physics._harmonic import landing_nodes
 
 
+def _cx(a):
+    """Explicit cast to complex128 (tests run with strict dtype promotion)."""
+    return jnp.asarray(a).astype(jnp.complex128)
+
+
 def talbot_nodes(times, n_terms: int):
     """Contour points ``S (T, M)`` complex and factors ``gamma (T, M)`` so that ``F(t) = Re sum gamma F^(S)``."""
     theta = np.pi * np.arange(n_terms) / n_terms
     r = 2.0 * n_terms / (5.0 * times)  # (T,)
     th = jnp.asarray(theta[1:])
     cot = 1.0 / jnp.tan(th)
-    s_rest = r[:, None] * th[None, :] * (cot[None, :] + 1j)
+    s_rest = _cx(r[:, None] * th[None, :]) * (_cx(cot)[None, :] + 1j)
     sigma = th + (th * cot - 1.0) * cot
-    s_all = jnp.concatenate([r[:, None].astype(jnp.complex128), s_rest], axis=1)
-    gamma_rest = jnp.exp(times[:, None] * s_rest) * (1.0 + 1j * sigma[None, :])
-    gamma0 = 0.5 * jnp.exp(r * times)[:, None].astype(jnp.complex128)
-    gamma = jnp.concatenate([gamma0, gamma_rest], axis=1) * (r / n_terms)[:, None]
+    s_all = jnp.concatenate([_cx(r[:, None]), s_rest], axis=1)
+    gamma_rest = jnp.exp(_cx(times)[:, None] * s_rest) * (1.0 + 1j * _cx(sigma)[None, :])
+    gamma0 = _cx(0.5 * jnp.exp(r * times)[:, None])
+    gamma = jnp.concatenate([gamma0, gamma_rest], axis=1) * _cx(r / n_terms)[:, None]
     return s_all, gamma
 
 
@@ -68,7 +73,8 @@ def _bessel_ratios(x_out, x_in, n_max: int):
     def step(carry, i):
         u_out, u_in, rho = carry
         rho = rho * u_out / u_in
-        nxt = (1.0 / u_out + (2.0 * i + 1.0) / x_out, 1.0 / u_in + (2.0 * i + 1.0) / x_in, rho)
+        order = _cx(2.0 * i + 1.0)
+        nxt = (1.0 / u_out + order / x_out, 1.0 / u_in + order / x_in, rho)
         return nxt, rho
 
     init = (1.0 + 1.0 / x_out, 1.0 + 1.0 / x_in, jnp.ones_like(x_out))
@@ -87,27 +93,27 @@ def coupling_kernels(q, source, centres, radii, quad):
         cos_t = jnp.dot(points[::n_azimuth] - centre_m, (source - centre_m) / r0) / radius_m  # (n_polar,)
         s = jnp.sqrt(r0 * r0 + radius_m * radius_m - 2.0 * r0 * radius_m * cos_t)
         poisson = r0 * (r0 * r0 - radius_m * radius_m) / (4.0 * jnp.pi * s**3)  # harmonic density per steradian
-        rho = _bessel_ratios(r0 * q, radius_m * q, n_max)  # (n_max+1, P)
+        rho = _bessel_ratios(_cx(r0) * q, _cx(radius_m) * q, n_max)  # (n_max+1, P)
         legendre = _legendre(cos_t, n_max)  # (n_max+1, n_polar)
         order = (2.0 * jnp.arange(n_max + 1, dtype=jnp.float64) + 1.0) / (4.0 * jnp.pi)
-        landing = jnp.einsum("np,ni,n->pi", rho, legendre.astype(jnp.complex128), order.astype(jnp.complex128))
-        ratio = landing / poisson[None, :]  # (P, n_polar)
+        landing = jnp.einsum("np,ni,n->pi", rho, _cx(legendre), _cx(order))
+        ratio = landing / _cx(poisson)[None, :]  # (P, n_polar)
         dist = jnp.linalg.norm(points[:, None, :] - centres[None, :, :], axis=-1)  # (Q, R)
         dist = jnp.maximum(dist, radii[None, :])
-        lone = (radii / dist)[None] * jnp.exp(-(dist - radii)[None] * q[:, None, None])  # (P, Q, R)
+        lone = _cx(radii / dist)[None] * jnp.exp(-_cx(dist - radii)[None] * q[:, None, None])  # (P, Q, R)
         lone = lone.reshape(q.shape[0], n_polar, n_azimuth, num)
-        return jnp.einsum("pi,piaj,ia->pj", ratio, lone, weights.reshape(n_polar, n_azimuth))
+        return jnp.einsum("pi,piaj,ia->pj", ratio, lone, _cx(weights.reshape(n_polar, n_azimuth)))
 
-    kernels = jax.lax.map(lambda args: from_sphere(*args), (centres, radii))  # (R, P, R)
+    kernels = jax.vmap(from_sphere)(centres, radii)  # (R, P, R)
     off = 1.0 - jnp.eye(num, dtype=jnp.float64)
-    return jnp.transpose(kernels, (1, 0, 2)) * off[None]
+    return jnp.transpose(kernels, (1, 0, 2)) * _cx(off)[None]
 
 
 def solve_transforms(q, source, centres, radii, quad):
     """True transforms ``P~ (P, R)`` of the first-passage densities at the given ``q (P,)``."""
     num = centres.shape[0]
     r0 = jnp.linalg.norm(source[None, :] - centres, axis=-1)
-    lone = (radii / r0)[None, :] * jnp.exp(-(r0 - radii)[None, :] * q[:, None])  # (P, R)
+    lone = _cx(radii / r0)[None, :] * jnp.exp(-_cx(r0 - radii)[None, :] * q[:, None])  # (P, R)
     kernels = coupling_kernels(q, source, centres, radii, quad)
-    matrix = jnp.eye(num)[None] + jnp.transpose(kernels, (0, 2, 1))
+    matrix = _cx(jnp.eye(num))[None] + jnp.transpose(kernels, (0, 2, 1))
     return jnp.linalg.solve(matrix, lone[..., None])[..., 0]
