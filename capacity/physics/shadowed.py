@@ -171,7 +171,6 @@ def shadowed_hits(emitters, centres, radii, diffusion, degradation, symbol_inter
     sphere's, not the one with the other spheres present); numerics (contour, surface nodes, Legendre order)
     contribute < 1e-8. With one sphere the result equals the lone closed form to 1e-10.
     """
-    """
     emitters = jnp.asarray(emitters, dtype=jnp.float64)
     centres = jnp.asarray(centres, dtype=jnp.float64)
     radii = jnp.asarray(radii, dtype=jnp.float64)
