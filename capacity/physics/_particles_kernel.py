@@ -89,6 +89,7 @@ class State(NamedTuple):
     survivors: jax.Array  # () int64 molecules alive at the horizon
     steps: jax.Array  # () int64 steps taken by real molecules
     ticks: jax.Array  # () float64 simulated time of real molecules, in ticks (= steps a fixed-step run needs)
+    iterations: jax.Array  # () int64 kernel iterations (buffer occupancy = steps / (iterations * buffer))
     tail_sq: jax.Array  # (R,) float64 sum of squares of the survivors' lone capture probabilities
     positions: jax.Array  # (store, 3) final positions of stored survivors (NaN otherwise)
 
@@ -108,6 +109,7 @@ def initial_state(cfg: Config, geom: Geometry, n_spheres: int) -> State:
         survivors=jnp.zeros((), jnp.int64),
         steps=jnp.zeros((), jnp.int64),
         ticks=jnp.zeros(()),
+        iterations=jnp.zeros((), jnp.int64),
         tail_sq=jnp.zeros(n_spheres),
         positions=jnp.full((cfg.store, 3), jnp.nan),
     )
@@ -249,6 +251,7 @@ def _iteration(cfg: Config, geom: Geometry, s: State) -> State:
         survivors=s.survivors + jnp.sum(at_horizon.astype(jnp.int64)),
         steps=s.steps + jnp.sum(active.astype(jnp.int64)),
         ticks=s.ticks + jnp.sum(jnp.where(active, h_ticks, 0.0)),
+        iterations=s.iterations + 1,
         positions=positions,
     )
 

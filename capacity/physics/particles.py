@@ -59,6 +59,7 @@ class Simulation(NamedTuple):
     ticks : (E,) simulated molecule-time in base steps: the molecule-steps a fixed-step run of the same
         molecules would need (absorbed and degraded molecules stop counting).
     survivors : (E,) molecules free at the horizon.
+    occupancy : (E,) fraction of buffer places holding a molecule, averaged over kernel iterations.
     """
 
     hits: np.ndarray
@@ -72,6 +73,7 @@ class Simulation(NamedTuple):
     steps: np.ndarray
     ticks: np.ndarray
     survivors: np.ndarray
+    occupancy: np.ndarray
 
 
 def simulate_hits(
@@ -217,6 +219,7 @@ def _simulate(
     tail_se = np.zeros((n_emit, n_sph))
     steps = np.zeros(n_emit, np.int64)
     ticks = np.zeros(n_emit)
+    occupancy = np.zeros(n_emit)
     survivors = np.zeros(n_emit, np.int64)
     positions = []
     bar = _progress_bar(progress, n_emit * inp.particles)
@@ -258,6 +261,7 @@ def _simulate(
         tail_se[i] = np.sqrt(np.maximum(second - tail[i] ** 2, 0.0) / n)
         steps[i] = int(state.steps)
         ticks[i] = float(state.ticks)
+        occupancy[i] = float(state.steps) / max(1.0, float(state.iterations) * cfg.buffer)
         survivors[i] = int(state.survivors)
         pos = np.asarray(state.positions)
         positions.append(pos[np.isfinite(pos[:, 0])])
@@ -275,7 +279,8 @@ def _simulate(
     n = float(inp.particles)
     hits = counts / n
     stderr = np.sqrt(hits * (1.0 - hits) / n)
-    return Simulation(hits, tail, stderr, dt, n_slot, offsets * dt, tail_se, positions, steps, ticks, survivors)
+    return Simulation(hits, tail, stderr, dt, n_slot, offsets * dt, tail_se, positions, steps, ticks, survivors,
+                      occupancy)
 
 
 def _pow2_at_least(n: int) -> int:
