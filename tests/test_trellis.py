@@ -62,9 +62,10 @@ def test_forward_normalisers_equal_brute_force_block_probability():
     rng = np.random.default_rng(1)
     for i in rng.choice(len(ys), size=6, replace=False):
         y = ys[i].astype(float)[:, None]
-        got = float(forward_log_normalisers(branch, jnp.log(jnp.full((2, 2), 0.5)), jnp.log(jnp.full(2, 0.5)),
-                                            jnp.asarray(y), 2).sum()) - gammaln(y + 1).sum()
-        assert got == pytest.approx(logp[i], abs=1e-12)
+        for log_domain in (False, True):  # scaled linear-domain default and the log-sum-exp variant
+            got = float(forward_log_normalisers(branch, jnp.log(jnp.full((2, 2), 0.5)), jnp.log(jnp.full(2, 0.5)),
+                                                jnp.asarray(y), 2, log_domain).sum()) - gammaln(y + 1).sum()
+            assert got == pytest.approx(logp[i], abs=1e-12)
 
 
 def test_rate_inside_entropy_rate_bracket_from_short_blocks():
@@ -124,6 +125,11 @@ def test_dicode_erasure_channel_through_generic_core():
     prior = jnp.log(jnp.full(2, 0.5))
     lams = jax.vmap(lambda yy: forward_log_normalisers(_dicode_log_branch(eps), log_trans, prior, yy, 2).sum())(
         jnp.asarray(y))
+    lams_log = jax.vmap(lambda yy: forward_log_normalisers(_dicode_log_branch(eps), log_trans, prior, yy, 2,
+                                                           True).sum())(jnp.asarray(y[:1, :2000]))
+    assert np.all(np.isfinite(np.asarray(lams)))
+    assert float(lams_log[0]) == pytest.approx(float(jax.vmap(lambda yy: forward_log_normalisers(
+        _dicode_log_branch(eps), log_trans, prior, yy, 2).sum())(jnp.asarray(y[:1, :2000]))[0]), abs=1e-9)
     log_w = np.where(erased, np.log(eps), np.log(1 - eps)).sum(axis=1)
     rates = (log_w - np.asarray(lams)) / n / np.log(2)
     expected = 1 - 2 * eps**2 / (1 + eps)

@@ -140,34 +140,75 @@ def stationary(trans: np.ndarray) -> np.ndarray:
 
 
 # ----------------------------------------------------------------------------------------------- generic core
-def forward_log_normalisers(log_branch: Callable, log_trans, log_prior, outputs, n_inputs: int):
-    """Normalised forward recursion over a shift-register trellis, in the log domain.
+def forward_log_normalisers(log_branch: Callable, log_trans, log_prior, outputs, n_inputs: int,
+                            log_domain: bool = False):
+    """Normalised forward recursion over a shift-register trellis; returns the (n,) array of ``ln lambda_k``.
 
     log_branch : function ``y_k -> (N, S)`` array of ln W(y_k | state, input) (any channel).
     log_trans : (N, S) ln P(input | state).  log_prior : (N,) ln law of the state before the first output.
-    outputs : (n, ...) array scanned over its first axis. Returns the (n,) array of ``ln lambda_k``
-    (``sum_k ln lambda_k = ln P(y^n)``). Jit- and vmap-friendly.
+    outputs : (n, ...) array scanned over its first axis. ``sum_k ln lambda_k = ln P(y^n)``.
+
+    The forward vector is kept normalised (sum 1) in the linear domain, and each step's branch weights are
+    scaled by ``exp(-m_k)`` with ``m_k`` the largest branch log-weight of that step, so
+    ``ln lambda_k = m_k + ln(sum of scaled weights)`` (Arnold et al. 2006). The weights of blocks of up to 256
+    steps are computed at once outside the sequential loop. If the forward vector's dynamic range ever exceeds
+    float64 a normaliser becomes ``-inf``/``nan`` (never a silent wrong value): ``log_domain=True`` runs the same
+    recursion with log-sum-exp throughout (slower; exact for any dynamic range). Jit- and vmap-friendly.
     """
     N = log_prior.shape[0]
     S = n_inputs
 
-    def step(log_alpha, y):
-        lw = log_alpha[:, None] + log_trans + log_branch(y)
+    def merge(w, add):
         if N == 1:
-            new = logsumexp(lw).reshape(1)
-        else:
-            new = logsumexp(lw.reshape(S, N // S, S), axis=0).reshape(N)
+            return add(w).reshape(1)
+        return add(w.reshape(S, N // S, S), axis=0).reshape(N)
+
+    def step_log(log_alpha, y):
+        new = merge(log_alpha[:, None] + log_trans + log_branch(y), logsumexp)
         log_lam = logsumexp(new)
         return new - log_lam, log_lam
 
-    _, log_lams = lax.scan(step, log_prior, outputs)
-    return log_lams
+    def block_lin(alpha, ys):
+        # branch weights of a whole block at once (vectorised, outside the sequential part), then the scaled
+        # linear update step by step: new = merge(alpha * w_k), ln lambda_k = m_k + ln sum(new)
+        lw = log_trans[None] + jax.vmap(log_branch)(ys)  # (B, N, S)
+        m = jnp.max(lw, axis=(1, 2))
+        w = jnp.exp(lw - m[:, None, None])
+
+        def step(a, wk):
+            new = merge(a[:, None] * wk, jnp.sum)
+            z = jnp.sum(new)
+            return new / z, jnp.log(z)
+
+        a, log_z = lax.scan(step, alpha, w)
+        return a, m + log_z
+
+    if log_domain:
+        _, log_lams = lax.scan(step_log, log_prior, outputs)
+        return log_lams
+    n = outputs.shape[0]
+    B = int(min(256, max(1, (1 << 18) // (N * S)), n))
+    nb = n // B
+    alpha, head = lax.scan(block_lin, jnp.exp(log_prior), outputs[: nb * B].reshape((nb, B) + outputs.shape[1:]))
+    if nb * B == n:
+        return head.reshape(-1)
+    _, tail = block_lin(alpha, outputs[nb * B:])
+    return jnp.concatenate([head.reshape(-1), tail])
+
+
+TINY_MEAN = 1e-300  # a zero branch mean is floored here inside the recursion: y ln(mu) = -690 y for y > 0
 
 
 def poisson_log_branch(mu_flat, mu_sum, N: int, S: int):
-    """Branch log-likelihood function for Poisson counts (constant -ln y! dropped: it cancels in I)."""
+    """Branch log-likelihood function for Poisson counts (constant -ln y! dropped: it cancels in I).
+
+    mu_flat (N*S, R) branch means, mu_sum (N*S,) their sums over receivers; ``y -> (N, S)`` array
+    ``sum_j y_j ln mu_j - mu_j`` computed as one matrix-vector product.
+    """
+    log_mu = jnp.log(jnp.maximum(mu_flat, TINY_MEAN))
+
     def log_branch(y):
-        return (xlogy(y[None, :], mu_flat).sum(axis=1) - mu_sum).reshape(N, S)
+        return (log_mu @ y - mu_sum).reshape(N, S)
     return log_branch
 
 
@@ -250,8 +291,8 @@ def path_states(x, H: int, n: int, M: int, S: int):
     return (x[idx] * (S ** jnp.arange(M))[None, :]).sum(axis=1)
 
 
-@partial(jax.jit, static_argnames=("H", "M"))
-def _run_sums(x, y, mean, mu_aux, log_trans, log_prior, *, H, M):
+@partial(jax.jit, static_argnames=("H", "M", "log_domain"))
+def _run_sums(x, y, mean, mu_aux, log_trans, log_prior, *, H, M, log_domain=False):
     """Per run: (ln q(y|x) - ln q(y), ln W(y|x) - ln q(y)) in nats; x (runs, H+n), y and mean (runs, n, R)."""
     N, S = log_trans.shape
     n = y.shape[1]
@@ -259,7 +300,7 @@ def _run_sums(x, y, mean, mu_aux, log_trans, log_prior, *, H, M):
     branch = poisson_log_branch(mu_flat, mu_flat.sum(axis=1), N, S)
 
     def one(xr, yr, mr):
-        log_lams = forward_log_normalisers(branch, log_trans, log_prior, yr, S)
+        log_lams = forward_log_normalisers(branch, log_trans, log_prior, yr, S, log_domain)
         mu_path = mu_aux[path_states(xr, H, n, M, S), xr[H:]]
         log_q_path = (xlogy(yr, mu_path) - mu_path).sum()
         log_w_path = (xlogy(yr, mr) - mr).sum()
@@ -308,8 +349,10 @@ def trellis_rates(hits, background, symbols, input_law, *, interference=None, n_
     with np.errstate(divide="ignore"):
         x, y, mean = simulate(jax.random.PRNGKey(int(seed)), np.log(law), np.log(src_prior), sym, h, base,
                               n=int(n_symbols), H=H, m=m, runs=int(n_runs))
-        lo, up = _run_sums(x, y, mean, jnp.asarray(mu_aux), jnp.asarray(np.log(trans)),
-                           jnp.asarray(np.log(prior)), H=H, M=M)
+        args = (x, y, mean, jnp.asarray(mu_aux), jnp.asarray(np.log(trans)), jnp.asarray(np.log(prior)))
+        lo, up = _run_sums(*args, H=H, M=M)
+        if not (np.all(np.isfinite(lo)) and np.all(np.isfinite(up))):  # dynamic range beyond float64: redo
+            lo, up = _run_sums(*args, H=H, M=M, log_domain=True)
     scale = 1.0 / (int(n_symbols) * LN2)
     return {"lower": np.asarray(lo) * scale, "upper": np.asarray(up) * scale, "kept": kept, "memory": L,
             "states": S**M, "exact": kept == L}
