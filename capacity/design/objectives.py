@@ -244,6 +244,36 @@ def _surrogate(problem: Problem, sizes: tuple, arrays, fixed: Fixed):
     return value, (bits, molecules, ts)
 
 
+_CACHE: dict = {}
+_CACHE_SIZE = 8
+
+
+def _key(problem: Problem):
+    """Hashable fingerprint of a problem (array contents included)."""
+    def freeze(v):
+        if isinstance(v, np.ndarray):
+            return (v.dtype.str, v.shape, v.tobytes())
+        if isinstance(v, dict):
+            return tuple(sorted((k, freeze(x)) for k, x in v.items()))
+        if isinstance(v, (tuple, list)):
+            return tuple(freeze(x) for x in v)
+        return v
+
+    return freeze(tuple(problem.space)) + freeze(tuple(problem)[1:])
+
+
+def _compiled(problem: Problem):
+    """Compiled pieces of a problem, shared by every Objective of an equal problem (a small LRU table)."""
+    key = _key(problem)
+    if key not in _CACHE:
+        if len(_CACHE) >= _CACHE_SIZE:
+            _CACHE.pop(next(iter(_CACHE)))
+        arrays = lambda u: design_arrays(problem, u)  # noqa: E731
+        _CACHE[key] = (jax.jit(arrays), jax.jit(lambda u, ct: jax.vjp(arrays, u)[1](ct)[0]),
+                       jax.jit(lambda arr, law: channel_means(problem, arr[0], arr[1], arr[2], law)[0]), {})
+    return _CACHE[key]
+
+
 class Objective:
     """A compiled design objective: :meth:`evaluate` (value, and gradient when asked) at unconstrained ``u``.
 
@@ -261,17 +291,14 @@ class Objective:
         self.evaluations = 0
         n_sym = np.shape(problem.base_symbols)[0]
         self._law = np.full(n_sym, 1.0 / n_sym)
-        arrays = lambda u: design_arrays(problem, u)  # noqa: E731
-        self._forward = jax.jit(arrays)
-        self._pull = jax.jit(lambda u, ct: jax.vjp(arrays, u)[1](ct)[0])
-        self._means = jax.jit(lambda arr, law: channel_means(problem, arr[0], arr[1], arr[2], law)[0])
+        self._forward, self._pull, self._means, self._vg = _compiled(problem)
         self._sizes = None
-        self._vg = {}
 
     def _channel(self, sizes):
         """Compiled channel part on the design arrays (value, and value with d/d arrays), per grid size."""
         if sizes not in self._vg:
-            fn = lambda arr, fixed: _surrogate(self.problem, sizes, arr, fixed)  # noqa: E731
+            problem = self.problem
+            fn = lambda arr, fixed: _surrogate(problem, sizes, arr, fixed)  # noqa: E731
             self._vg[sizes] = (jax.jit(jax.value_and_grad(fn, has_aux=True)), jax.jit(fn))
         return self._vg[sizes]
 
