@@ -55,6 +55,7 @@ class Simulation(NamedTuple):
         sqrt(n)).
     survivor_positions : list over emitters of (S_i, 3) arrays, metres: final positions of the molecules still
         free at the horizon among the first ``min(N, STORE)`` molecules.
+    survivor_ids : list over emitters of (S_i,) int arrays: the molecule indices of those positions.
     steps : (E,) number of molecule-steps actually taken.
     ticks : (E,) simulated molecule-time in base steps: the molecule-steps a fixed-step run of the same
         molecules would need (absorbed and degraded molecules stop counting).
@@ -70,6 +71,7 @@ class Simulation(NamedTuple):
     offsets: np.ndarray
     tail_stderr: np.ndarray
     survivor_positions: list
+    survivor_ids: list
     steps: np.ndarray
     ticks: np.ndarray
     survivors: np.ndarray
@@ -221,7 +223,7 @@ def _simulate(
     ticks = np.zeros(n_emit)
     occupancy = np.zeros(n_emit)
     survivors = np.zeros(n_emit, np.int64)
-    positions = []
+    positions, ids = [], []
     bar = _progress_bar(progress, n_emit * inp.particles)
     with np.errstate(over="ignore"):  # uint64 arithmetic wraps on purpose
         root = _k.mix64(np.uint64(inp.seed))
@@ -264,7 +266,8 @@ def _simulate(
         occupancy[i] = float(state.steps) / max(1.0, float(state.iterations) * cfg.buffer)
         survivors[i] = int(state.survivors)
         pos = np.asarray(state.positions)
-        positions.append(pos[np.isfinite(pos[:, 0])])
+        ids.append(np.flatnonzero(np.isfinite(pos[:, 0])))
+        positions.append(pos[ids[-1]])
         for j in np.flatnonzero(inp.passive):
             tail[i, j], tail_se[i, j] = passive_tail(
                 positions[-1], min(inp.particles, STORE), inp.centres[j], inp.radii[j], offsets[j] * dt,
@@ -279,7 +282,7 @@ def _simulate(
     n = float(inp.particles)
     hits = counts / n
     stderr = np.sqrt(hits * (1.0 - hits) / n)
-    return Simulation(hits, tail, stderr, dt, n_slot, offsets * dt, tail_se, positions, steps, ticks, survivors,
+    return Simulation(hits, tail, stderr, dt, n_slot, offsets * dt, tail_se, positions, ids, steps, ticks, survivors,
                       occupancy)
 
 
