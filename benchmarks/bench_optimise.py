@@ -38,10 +38,11 @@ def _case(tune, rate, grid_points):
     t_opt = time.perf_counter() - t
     problem = build_problem(sc, tune, "bits-per-second", rate=rate)
     obj = Objective(problem)
-    obj.evaluate(unconstrain(problem.space, dict(zip(tune, grid_points[0]))))  # compile outside the timing
+    # compile outside the timing
+    obj.evaluate(unconstrain(problem.space, dict(zip(tune, grid_points[0], strict=True))))
     obj.evaluations = 0
     t = time.perf_counter()
-    vals = [obj.evaluate(unconstrain(problem.space, dict(zip(tune, p)))).value for p in grid_points]
+    vals = [obj.evaluate(unconstrain(problem.space, dict(zip(tune, p, strict=True)))).value for p in grid_points]
     t_grid = time.perf_counter() - t
     k = int(np.argmax(vals))
     return {

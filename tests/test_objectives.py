@@ -12,7 +12,7 @@ import pytest
 from scipy import optimize, special, stats
 
 from capacity import Channel, Emitter, Medium, Receiver, Scenario, Signalling
-from capacity.design.objectives import Objective, _surrogate, Fixed, channel_means, design_arrays
+from capacity.design.objectives import Fixed, Objective, _surrogate, channel_means, design_arrays
 from capacity.design.optimise import build_problem
 from capacity.design.params import base_physical, constrain, geometry, layout, make_space, unconstrain
 from capacity.errors import InputError

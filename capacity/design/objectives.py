@@ -305,7 +305,7 @@ class Objective:
     def _grow(self, sizes):
         """Grid sizes never shrink within one objective, so the compiled functions are reused."""
         if self._sizes is not None:
-            sizes = tuple(max(a, b) for a, b in zip(sizes, self._sizes))
+            sizes = tuple(max(a, b) for a, b in zip(sizes, self._sizes, strict=True))
         self._sizes = sizes
         return sizes
 

@@ -6,13 +6,13 @@
 1. set-up: alphabet (``build_alphabet``), differentiable response model (``shadowed`` when every receiver absorbs
    and the scenario asks for ``shadowed`` or ``particles``; ``lone`` otherwise), memory L (the scenario's, or the
    smallest L whose later slots are below ``channel.memory_tolerance`` of the pair's peak at the given design);
-2. ``starts`` runs of Adam (Kingma & Ba, ICLR 2015) with a warm-up + cosine-decay learning-rate schedule and
-   global-norm clipping, on the unconstrained parameters; start 0 is the given design, the others are seeded random
-   perturbations of it (±0.7 in the unconstrained coordinates, i.e. about a factor 2 in log-scaled quantities).
-   A step that would make the geometry infeasible (emitter inside a receiver, receivers closer than the minimum
-   gap) is halved until feasible (up to 8 times, else skipped). A run stops early when, over the last
-   ``window`` steps, the objective changed by less than ``rtol`` relatively and the gradient norm times the
-   learning rate is below ``rtol`` of the objective;
+2. ``starts`` runs of an optax optimiser on the unconstrained parameters (default Rprop, whose per-coordinate
+   step sizes are its schedule; or Adam with a warm-up + cosine-decay schedule, see :func:`make_optimiser`);
+   start 0 is the given design, the others are seeded random perturbations of it (±0.7 in the unconstrained
+   coordinates, i.e. about a factor 2 in log-scaled quantities). A step that would make the geometry infeasible
+   (emitter inside a receiver, receivers closer than the minimum gap) is halved until feasible (up to 8 times,
+   else skipped). A run stops early when, over the last ``window`` steps, the objective changed by less than
+   ``rtol`` relatively and every step was small (see :func:`run_start`); each start reports both;
 3. polish of the best design: the i.i.d. information rate with ISI by the forward recursion over the ISI trellis
    (``information_rate``, with its standard error) and the single-letter bounds (``isi_bounds``: lower =
    max(I_sbs, I_dfe), upper = I_mf), all in the objective's units, at the input law of the final evaluation.
@@ -188,7 +188,10 @@ def make_optimiser(method: str, learning_rate: float, steps: int):
 
 def run_start(obj: Objective, u0: dict, *, steps, learning_rate, method="rprop", window=8, rtol=1e-6,
               step_tol=1e-3, start=0, bar=None):
-    """One optimiser run from ``u0``; returns (best Evaluation, best u, history list, converged flag).
+    """One optimiser run from ``u0``; returns (best Evaluation, best u, history, converged flag, report).
+
+    report: relative change of the objective and largest step over the last ``window`` steps, last gradient
+    norm (unconstrained coordinates).
 
     ``steps`` caps the optimiser steps. A step that leaves the parameters unchanged (Rprop after a sign flip)
     reuses the previous evaluation instead of spending a new one. Converged: over the last ``window`` steps the
@@ -236,7 +239,11 @@ def run_start(obj: Objective, u0: dict, *, steps, learning_rate, method="rprop",
             updates = {k: 0.5 * v for k, v in updates.items()}
         moves.append(move)
         moved = move > 0
-    return best, best_u, history, converged
+    recent = np.asarray(values[-window:])
+    report = {"relative_change": float((recent.max() - recent.min()) / max(abs(recent[-1]), 1e-300)),
+              "grad_norm": history[-1]["grad_norm"], "largest_step": float(max(moves[-window:], default=0.0)),
+              "window": window}
+    return best, best_u, history, converged, report
 
 
 def polish(scenario, problem: Problem, phys: dict, law, *, n_symbols=20_000, n_runs=4, seed=0):
@@ -261,16 +268,19 @@ def polish(scenario, problem: Problem, phys: dict, law, *, n_symbols=20_000, n_r
 
 
 def optimise_design(scenario, tune, objective: str, *, rate: str = "envelope", starts: int = 4, steps: int = 200,
-                    learning_rate: float = 0.1, seed: int = 0, bounds: dict | None = None, progress: bool = True,
+                    learning_rate: float = 0.1, seed: int = 0, method: str = "rprop", bounds: dict | None = None,
+                    progress: bool = True,
                     min_gap: float | None = None, do_polish: bool = True, polish_symbols: int = 20_000,
                     on_start: Callable | None = None) -> DesignResult:
     """Maximise ``objective`` over the tunables ``tune`` of ``scenario`` (see the module docstring).
 
     scenario : Scenario.  tune : names from :data:`capacity.design.params.TUNABLES`.
     objective : "bits-per-second" | "bits-per-molecule" | "bits-per-symbol".  rate : "envelope" | "isi-as-noise".
-    starts : seeded starts (>= 1).  steps : Adam steps per start.  learning_rate : peak step in unconstrained units.
+    starts : seeded starts (>= 1).  steps : optimiser steps per start (cap; runs stop early when converged).
+    learning_rate : initial (Rprop) or peak (Adam) step in unconstrained units.  method : "rprop" | "adam"
+    (see :func:`make_optimiser`).
     bounds : name -> (lo, hi) in the physical units of :mod:`capacity.design.params`.
-    min_gap : smallest receiver-emitter / receiver-receiver surface gap, m (default a tenth of the smallest radius).
+    min_gap : smallest receiver-emitter and receiver-receiver surface gap, m (default: smallest radius / 10).
     do_polish : run the trellis rate and bounds at the best design.  on_start : called as
     ``on_start(index, record)`` when each start finishes (the CLI saves it at once).
     """
@@ -293,12 +303,12 @@ def optimise_design(scenario, tune, objective: str, *, rate: str = "envelope", s
         for k, u0 in enumerate(_start_points(space, starts, seed)):
             t0 = time.perf_counter()
             n0 = obj.evaluations
-            best, best_u, hist, conv = run_start(obj, u0, steps=steps, learning_rate=learning_rate, start=k,
-                                                 bar=bar)
+            best, best_u, hist, conv, report = run_start(obj, u0, steps=steps, learning_rate=learning_rate,
+                                                         method=method, start=k, bar=bar)
             history.extend(hist)
             record = {"start": k, "value": best.value, "bits": best.bits, "molecules": best.molecules,
                       "best": describe(space, constrain(space, best_u)), "converged": conv,
-                      "evaluations": obj.evaluations - n0, "steps": len(hist),
+                      "evaluations": obj.evaluations - n0, "steps": len(hist), "convergence": report,
                       "seconds": time.perf_counter() - t0}
             results.append((best, best_u, conv, record))
             if on_start is not None:

@@ -287,7 +287,7 @@ def feasible(space: DesignSpace, phys: dict) -> bool:
 
 
 def describe(space: DesignSpace, phys: dict) -> dict:
-    """Plain-float SI values of the tuned parameters (as in the module table: s, molecules, fractions, m, scales)."""
+    """Plain-float SI values of the tuned parameters (units as in the module table)."""
     out = {}
     for name in space.tune:
         v = np.asarray(phys[name], dtype=float)

@@ -37,7 +37,8 @@ def scenario_toml(scenario, comments: tuple[str, ...] = ()) -> str:
         lines += ["", "[[emitter]]", f"name = {_value(e.name)}",
                   f"position = {_value([float(x) for x in e.position])}"]
     for r in scenario.receivers:
-        lines += ["", "[[receiver]]", f"name = {_value(r.name)}", f"centre = {_value([float(x) for x in r.centre])}",
+        centre = _value([float(x) for x in r.centre])
+        lines += ["", "[[receiver]]", f"name = {_value(r.name)}", f"centre = {centre}",
                   f"radius = {_value(float(r.radius))}", f"kind = {_value(r.kind)}"]
         if r.sample_offset is not None:
             lines.append(f"sample_offset = {_value(float(r.sample_offset))}")
