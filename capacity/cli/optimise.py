@@ -25,7 +25,8 @@ def add_parser(sub) -> None:
         "optimise",
         help="tune slot length, release levels, emitter split or receiver geometry for the most bits",
         description=(
-            "Gradient optimisation (Adam, several seeded starts) of one objective over chosen design parameters. "
+            "Gradient optimisation (optax Rprop or Adam, several seeded starts) of one objective over chosen "
+            "design parameters. "
             "Tunables: symbol_interval (slot length, s); levels (the non-zero release levels, molecules, each "
             "below the peak); split (share of each symbol's molecules per emitter); gap (moves every receiver "
             "along the line from its nearest emitter; the value is the smallest surface gap, m); spacing "
@@ -43,9 +44,12 @@ def add_parser(sub) -> None:
     p.add_argument("--rate", default="envelope", choices=("envelope", "isi-as-noise"),
                    help="differentiable rate to optimise (default envelope)")
     p.add_argument("--starts", type=int, default=4, metavar="N", help="seeded starts (default 4)")
-    p.add_argument("--steps", type=int, default=200, metavar="N", help="Adam steps per start (default 200)")
+    p.add_argument("--steps", type=int, default=200, metavar="N",
+                   help="most optimiser steps per start; a start stops early once converged (default 200)")
+    p.add_argument("--method", default="rprop", choices=("rprop", "adam"),
+                   help="optax optimiser: rprop (sign-based adaptive steps, default) or adam (cosine schedule)")
     p.add_argument("--learning-rate", type=float, default=0.1, metavar="ETA",
-                   help="peak Adam step in the unconstrained coordinates (default 0.1)")
+                   help="first (rprop) or peak (adam) step in the unconstrained coordinates (default 0.1)")
     p.add_argument("--seed", type=int, default=0, metavar="S", help="seed of the random starts (default 0)")
     p.add_argument("--bound", action="append", default=[], metavar="NAME=LO:HI",
                    help="bound a tunable in its units, e.g. symbol_interval=0.05:2 (repeatable)")
@@ -109,7 +113,7 @@ def _plots(result, out: Path) -> None:
     for k in sorted({h["start"] for h in result.history}):
         rows = [h for h in result.history if h["start"] == k]
         ax.plot([h["step"] for h in rows], [h["value"] for h in rows], label=f"start {k}")
-    ax.set_xlabel("Adam step")
+    ax.set_xlabel("optimiser step")
     ax.set_ylabel(f"{result.objective} [{unit}]")
     ax.set_title(f"{result.objective}, {result.rate} rate")
     ax.legend(fontsize=8)
@@ -149,7 +153,8 @@ def run(args) -> int:
             dump_json(record, out / f"start_{k}.json")
 
     result = optimise_design(scenario, tune, args.objective, rate=args.rate, starts=args.starts, steps=args.steps,
-                             learning_rate=args.learning_rate, seed=args.seed, bounds=parse_bounds(args.bound),
+                             learning_rate=args.learning_rate, method=args.method, seed=args.seed,
+                             bounds=parse_bounds(args.bound),
                              progress=not args.json, do_polish=not args.no_polish, on_start=save_start)
     record = result_record(result)
     if out is not None:
