@@ -52,6 +52,8 @@ LAYOUTS = {
                           D=1.0e-10, k=0.0, Ts=0.2),
     "emitter_near_receiver": dict(emitters=[(0, 0, 0)], centres=[(6, 0, 0), (14, 7, 0)], radii=[4, 4],
                                   D=1.0e-10, k=0.0, Ts=0.1),
+    "hidden_close": dict(emitters=[(0, 0, 0)], centres=[(12, 0, 0), (20.2, 1, 0)], radii=[4, 3],
+                         D=1.0e-10, k=0.0, Ts=0.2),
     "degradation_two_emitters": dict(emitters=[(0, 0, 0), (10, 14, 0)], centres=[(12, 0, 0), (22, 5, 0)],
                                      radii=[4, 4], D=1.0e-10, k=2.0, Ts=0.2),
 }
