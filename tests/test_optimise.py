@@ -38,7 +38,11 @@ def grid_search(scenario, name, objective, values, rate="envelope"):
     """Dense grid of the same objective (Blahut-Arimoto re-solved at each point): (best value, best x)."""
     problem = build_problem(scenario, (name,), objective, rate=rate)
     obj = Objective(problem)
-    out = [obj.evaluate(unconstrain(problem.space, {name: np.asarray(v)})).value for v in values]
+    out = []
+    for v in values:
+        u = unconstrain(problem.space, {name: np.asarray(v)})
+        ok = feasible(problem.space, constrain(problem.space, u))
+        out.append(obj.evaluate(u).value if ok else -np.inf)
     k = int(np.argmax(out))
     return out[k], values[k], len(values)
 

@@ -44,7 +44,7 @@ import numpy as np
 from jax.scipy.special import gammaln, logsumexp, xlogy
 from scipy import stats
 
-from capacity.design.params import DesignSpace, Layout, constrain, layout
+from capacity.design.params import DesignSpace, Layout, constrain, feasible, layout
 from capacity.errors import InputError
 
 OBJECTIVES = ("bits-per-symbol", "bits-per-second", "bits-per-molecule")
@@ -335,6 +335,10 @@ class Objective:
         """Objective at unconstrained parameters ``u`` (dict of arrays); with ``grad``, d objective / d u too."""
         self.evaluations += 1
         u = {k: jnp.asarray(v, dtype=jnp.float64) for k, v in u.items()}
+        if not feasible(self.problem.space, constrain(self.problem.space, u)):
+            raise InputError("design", {k: np.asarray(v).tolist() for k, v in u.items()},
+                             "puts an emitter inside a receiver or two receivers closer than the minimum gap",
+                             "bound the geometric tunables (bounds=...) or move the starting layout")
         arrays = self._forward(u)
         law, slope, gap = self._solve(arrays)
         self._law = law
