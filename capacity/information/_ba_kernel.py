@@ -27,6 +27,7 @@ from jax import lax
 from jax.scipy.special import logsumexp
 
 TINY = 1e-300
+_MAX_PASSES = 16  # active-set passes per Newton step (entries still negative after them are clipped)
 _FLOOR = 1e-300  # Blahut–Arimoto step: p is floored here so an input dropped by Newton can come back
 
 
@@ -55,43 +56,48 @@ def _ba_step(p, ev: Evaluation, b, s, valid):
     return jnp.exp(logits - logsumexp(logits))
 
 
-def _newton_step(p, ev: Evaluation, w, b, s, valid):
-    """Newton step on the KKT system with a drop-the-negative active set; returns a point of the simplex."""
+def _newton_step(p, ev: Evaluation, w, b, s, valid, mu):
+    """Damped Newton step on the KKT system with a drop-the-negative active set; a point of the simplex.
+
+    The damping mu * diag(1/p) (Levenberg–Marquardt in the metric of the Blahut–Arimoto step, whose first
+    order form is dp = p (g - nu)) keeps steps bounded where the Hessian is singular (more inputs than
+    outputs, nearly collinear rows); mu shrinks after successful steps, so the step becomes pure Newton.
+    """
     n = p.shape[0]
     g = ev.d - s * b
     wn = w / jnp.sqrt(jnp.maximum(ev.q, TINY))[None, :]
     hess = -(wn @ wn.T)
     start = ((p > 0) | (g > ev.objective)) & valid  # current support plus inputs that violate the KKT condition
-    reg = 1e-12 * jnp.max(jnp.abs(jnp.diag(hess)))
+    damp = 1e-12 * jnp.max(jnp.abs(jnp.diag(hess))) + mu / jnp.maximum(p, 1e-8)
 
     def solve(active):
-        return _kkt_solve(hess, reg, active, -g + hess @ jnp.where(active, 0.0, p), -p, p)
+        return _kkt_solve(hess, damp, active, -g + hess @ jnp.where(active, 0.0, p), -p, p)
 
     def cond(state):
         active, new, changed, passes = state
-        return changed & (passes < n)
+        return changed & (passes < _MAX_PASSES)
 
     def body(state):
-        active, new, _, passes = state
+        active, _, _, passes = state
+        new = solve(active)
         drop = active & (new < 0)
-        active = active & ~drop
-        return active, solve(active), jnp.any(drop), passes + 1
+        return active & ~drop, new, jnp.any(drop), passes + 1
 
-    active, new, _, _ = lax.while_loop(cond, body, (start, solve(start), jnp.array(True), 0))
+    active, new, _, _ = lax.while_loop(cond, body, (start, p, jnp.array(True), 0))
     new = jnp.where(active, jnp.maximum(new, 0.0), 0.0)
     total = jnp.sum(new)
     ok = jnp.all(jnp.isfinite(new)) & (total > 0)
     return jnp.where(ok, new / jnp.where(ok, total, 1.0), p)
 
 
-def _kkt_solve(hess, reg, active, rhs_active, fixed_inactive, p):
+def _kkt_solve(hess, damp, active, rhs_active, fixed_inactive, p):
     """Solve H_AA dA - nu 1 = rhs_A, d_i = fixed_i off A, sum(d) = 0 with one Cholesky factor.
 
-    N = -H_AA + reg I (positive definite) on A, identity off A; d = N^-1 (c - nu a) with c = -rhs on A and
+    N = -H_AA + diag(damp) (positive definite) on A, identity off A; d = N^-1 (c - nu a) with c = -rhs on A and
     the fixed values off A; nu from the sum constraint. Returns p + d.
     """
     a = active.astype(hess.dtype)
-    n_mat = -(hess * a[:, None] * a[None, :]) + jnp.diag(reg * a + (1.0 - a))
+    n_mat = -(hess * a[:, None] * a[None, :]) + jnp.diag(damp * a + (1.0 - a))
     c = jnp.where(active, -rhs_active, fixed_inactive)
     factor = jax.scipy.linalg.cho_factor(n_mat, lower=True)
     sol = jax.scipy.linalg.cho_solve(factor, jnp.stack([c, a], axis=1))
@@ -120,15 +126,15 @@ def solve(w, negent, b, s, valid, p0, tol, max_iter, newton: bool = True) -> Sol
     eps = 1e-14
 
     def cond(st):
-        p, ev, it, nsteps, best_p, best_ev, since = st
+        p, ev, it, nsteps, best_p, best_ev, since, mu = st
         return (best_ev.gap > tol) & (it < max_iter) & (since < 2000)
 
     def body(st):
-        p, ev, it, nsteps, best_p, best_ev, since = st
+        p, ev, it, nsteps, best_p, best_ev, since, mu = st
         p_ba = _ba_step(p, ev, b, s, valid)
         ev_ba = evaluate(p_ba, w, negent, b, s, valid)
         if newton:
-            p_nt = _newton_step(p, ev, w, b, s, valid)
+            p_nt = _newton_step(p, ev, w, b, s, valid, mu)
             ev_nt = evaluate(p_nt, w, negent, b, s, valid)
             scale = eps * (1.0 + jnp.abs(ev_ba.objective))
             better = ev_nt.objective > ev_ba.objective + scale
@@ -138,17 +144,19 @@ def solve(w, negent, b, s, valid, p0, tol, max_iter, newton: bool = True) -> Sol
             p_new = jnp.where(take, p_nt, p_ba)
             ev_new = jax.tree_util.tree_map(lambda a, c: jnp.where(take, a, c), ev_nt, ev_ba)
             nsteps = nsteps + take.astype(nsteps.dtype)
+            gain = ev_nt.objective > ev.objective + scale  # the damped step improved on the current point
+            mu = jnp.where(gain, jnp.maximum(mu * 0.1, 1e-14), jnp.minimum(mu * 10.0, 1e4))
         else:
             p_new, ev_new = p_ba, ev_ba
         improved = ev_new.gap < best_ev.gap
         best_p = jnp.where(improved, p_new, best_p)
         best_ev = jax.tree_util.tree_map(lambda a, c: jnp.where(improved, a, c), ev_new, best_ev)
         since = jnp.where(improved, 0, since + 1)
-        return p_new, ev_new, it + 1, nsteps, best_p, best_ev, since
+        return p_new, ev_new, it + 1, nsteps, best_p, best_ev, since, mu
 
     zero = jnp.array(0)
-    st = lax.while_loop(cond, body, (p0, ev0, zero, zero, p0, ev0, zero))
-    _, _, it, nsteps, best_p, best_ev, since = st
+    st = lax.while_loop(cond, body, (p0, ev0, zero, zero, p0, ev0, zero, jnp.asarray(1e-3, p0.dtype)))
+    _, _, it, nsteps, best_p, best_ev, since, _ = st
     return Solution(best_p, best_ev, it, nsteps, since >= 2000, _cost_derivative(best_p, w, b))
 
 
@@ -161,6 +169,6 @@ def _cost_derivative(p, w, b, support_threshold=1e-12):
     active = p > support_threshold * jnp.max(p)
     wn = jnp.where(active[:, None], w, 0.0) / jnp.sqrt(jnp.maximum(q, TINY))[None, :]
     hess = -(wn @ wn.T)
-    reg = 1e-12 * jnp.max(jnp.abs(jnp.diag(hess)))
+    reg = 1e-12 * jnp.max(jnp.abs(jnp.diag(hess))) * jnp.ones_like(p)
     dp = _kkt_solve(hess, reg, active, b, jnp.zeros_like(p), jnp.zeros_like(p))
     return jnp.dot(b, dp)

@@ -108,7 +108,7 @@ def _prepare(transition, tol: float) -> _Prepared:
         kept = np.concatenate([kept, overflow[:, None]], axis=1)
     negent = special.xlogy(kept, kept).sum(axis=1)
     # pad to bucket sizes so that a few compiled kernels serve every shape (zero rows/columns are inert)
-    s_pad, y_pad = _bucket(n_sym, 4), _bucket(kept.shape[1], 8)
+    s_pad, y_pad = _bucket(n_sym, 8), _bucket(kept.shape[1], 64)
     w_pad = np.zeros((s_pad, y_pad))
     w_pad[:n_sym, : kept.shape[1]] = kept
     neg_pad = np.zeros(s_pad)
