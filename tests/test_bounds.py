@@ -25,7 +25,7 @@ P = np.array([0.5, 0.5])
 def _mi(logw, p, weights):
     """sum_g w_g I(p, W_g) in bits; logw (G, S, Ny) log-pmfs over a grid."""
     total = 0.0
-    for wg, lw in zip(weights, logw):
+    for wg, lw in zip(weights, logw, strict=True):
         ly = logsumexp(lw + np.log(p)[:, None], axis=0)
         total += wg * np.sum(p[:, None] * np.exp(lw) * (lw - ly[None, :]))
     return total / np.log(2)
@@ -43,7 +43,8 @@ def _brute_l1(a, b, bg, p):
     grid = np.array(list(itertools.product(ys[:25], repeat=2)))
     groups, weights = [], []
     for u, v in itertools.product((0, 1), repeat=2):
-        groups.append([poisson.logpmf(grid[:, 0], mu(u, s)) + poisson.logpmf(grid[:, 1], mu(s, v)) for s in (0, 1)])
+        groups.append([poisson.logpmf(grid[:, 0], mu(u, s)) + poisson.logpmf(grid[:, 1], mu(s, v))
+                       for s in (0, 1)])
         weights.append(p[u] * p[v])
     mf = _mi(np.array(groups), p, weights)
     return sbs, dfe, mf

@@ -17,8 +17,13 @@ from scipy.stats import poisson
 
 import capacity  # noqa: F401  (float64)
 from capacity.errors import InputError
-from capacity.information.trellis import (branch_means, forward_log_normalisers, information_rate,
-                                          poisson_log_branch, trellis_rates)
+from capacity.information.trellis import (
+    branch_means,
+    forward_log_normalisers,
+    information_rate,
+    poisson_log_branch,
+    trellis_rates,
+)
 
 # Small binary ISI channel: 1 emitter, 1 receiver, L = 1, means <= 0.65 so counts above 13 carry < 1e-13 mass.
 HITS = np.array([[[0.4, 0.2]]])
@@ -172,3 +177,33 @@ def test_bad_input_raises():
         information_rate(HITS, BG, SYM, P, kept_lags=5)
     with pytest.raises(InputError, match="background"):
         information_rate(HITS, [-1.0], SYM, P)
+
+
+@pytest.mark.slow
+def test_long_memory_reduced_state_brackets_and_default_choice():
+    # L = 12 binary: 4096 states exact vs the default reduced state (max_states=256 -> L' = 8); Arnold et al.
+    # 2006: lower bound <= rate <= auxiliary upper bound, with common outputs
+    hits = np.array([[[1.5 * 0.7**lag for lag in range(13)]]])
+    kw = dict(n_symbols=20_000, n_runs=8, seed=21)
+    full = trellis_rates(hits, [0.3], SYM, P, max_states=4096, **kw)
+    red = trellis_rates(hits, [0.3], SYM, P, max_states=256, **kw)
+    assert full["exact"] and red["kept"] == 8
+    d_lo = full["lower"] - red["lower"]
+    d_up = red["upper"] - full["lower"]
+    assert d_lo.mean() > -3 * d_lo.std(ddof=1) / np.sqrt(8)
+    assert d_up.mean() > -3 * d_up.std(ddof=1) / np.sqrt(8)
+
+
+@pytest.mark.slow
+def test_bracket_with_long_run():
+    # Cover & Thomas Thm 4.5.1 bracket as above, with 8 x 100 000 symbols
+    h, h0 = {}, {}
+    for n in (3, 4):
+        _, logp, per_x0 = _block_logp(n)
+        h[n] = _entropy(logp)
+        h0[n] = sum(P[x0] * _entropy(per_x0[x0]) for x0 in range(2))
+    h_cond = sum(P[a] * P[b] * poisson(_mean(a, b)).entropy() for a in range(2) for b in range(2))
+    lo = (h0[4] - h0[3] - h_cond) / np.log(2)
+    hi = (h[4] - h[3] - h_cond) / np.log(2)
+    r = information_rate(HITS, BG, SYM, P, n_symbols=100_000, n_runs=8, seed=4)
+    assert lo - 3 * r.stderr <= r.rate <= hi + 3 * r.stderr

@@ -173,7 +173,8 @@ def isi_bounds(hits, background, symbols, input_law, *, interference=None, n_sam
         if kept == L:
             out["sbs"] = _mc_result(np.concatenate(d), int(seed), "Monte Carlo", f"mixture over {S**L} states")
         else:
-            out["sbs"] = _mc_result(np.concatenate(d), int(seed), f"Monte Carlo, auxiliary lower bound (L'={kept})",
+            method = f"Monte Carlo, auxiliary lower bound (L'={kept})"
+            out["sbs"] = _mc_result(np.concatenate(d), int(seed), method,
                                     f"ISI mixture keeps {kept} of {L} lags, the rest at their mean; outputs "
                                     "from the full channel, so this is a lower bound on I_sbs")
 
