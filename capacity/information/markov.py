@@ -32,8 +32,14 @@ from jax.scipy.special import logsumexp, xlogy
 
 from capacity.errors import InputError
 from capacity.information.result import RateResult
-from capacity.information.trellis import (branch_means, check_channel, information_rate, poisson_log_branch,
-                                          simulate, stationary)
+from capacity.information.trellis import (
+    branch_means,
+    check_channel,
+    information_rate,
+    poisson_log_branch,
+    simulate,
+    stationary,
+)
 
 
 def successors(N: int, S: int) -> np.ndarray:
