@@ -245,10 +245,10 @@ def passive_probability(t, radius, distance, diffusion, degradation=0.0):
 
 
 def _passive_tail_times(start, symbol_interval, terms: int):
-    """Times at which :func:`_passive_tail` needs P: ``terms`` explicit samples, t_K, and the quadrature nodes."""
+    """Times at which :func:`_passive_tail` needs P: ``terms`` explicit samples, t_K, t_K + Ts, quadrature nodes."""
     tk = start + float(terms) * symbol_interval
     explicit = start + jnp.arange(terms, dtype=jnp.float64) * symbol_interval
-    return jnp.concatenate([explicit, tk[None], tk / jnp.asarray(_GL_V) ** 2])
+    return jnp.concatenate([explicit, tk[None], (tk + symbol_interval)[None], tk / jnp.asarray(_GL_V) ** 2])
 
 
 def _passive_model_point(radius, distance, diffusion, degradation, symbol_interval, start, terms: int):
@@ -267,9 +267,9 @@ def _passive_tail(values, phic_model, radius, distance, diffusion, degradation, 
     m(t) = c t^-1.5 exp(-b/t - k t) (c = V (4 pi D)^-1.5, b = (rho^2 + 3a^2/5)/(4D)) matches P to first order in
     1/t and is integrated in closed form (c sqrt(pi/b) Phic(sqrt(b/t_K), k t_K), the absorbing-sphere integral);
     the correction int (P - m) = O(t_K^-2.5) by 64-point Gauss-Legendre in v, t = t_K / v^2 (smooth integrand).
-    P' is differentiated exactly; P''' is that of m (a term of relative size (Ts/t_K)^3 already).
+    P' from a central difference of the samples, P''' from m (a term of relative size (Ts/t_K)^3 already).
     """
-    explicit, p_k, p_gl = values[:terms], values[terms], values[terms + 1:]
+    explicit, p_k, p_next, p_gl = values[:terms], values[terms], values[terms + 1], values[terms + 2:]
     tk = start + float(terms) * symbol_interval
     c = 4.0 / 3.0 * jnp.pi * radius**3 * (4.0 * jnp.pi * diffusion) ** -1.5
     b = (distance**2 + 0.6 * radius**2) / (4.0 * diffusion)
@@ -284,9 +284,11 @@ def _passive_tail(values, phic_model, radius, distance, diffusion, degradation, 
     h = -1.5 / tk + b / tk**2 - degradation  # m'/m and its derivatives
     dh = 1.5 / tk**2 - 2.0 * b / tk**3
     ddh = -3.0 / tk**3 + 6.0 * b / tk**4
-    p1 = jax.grad(passive_probability)(tk, radius, distance, diffusion, degradation)  # P'(t_K)
-    remainder = ((int_model + corr) / symbol_interval + 0.5 * p_k - symbol_interval / 12.0 * p1
-                 + symbol_interval**3 / 720.0 * m * (h**3 + 3.0 * h * dh + ddh))
+    # P'(t_K) by the central difference (P(t_K+Ts) - P(t_K-Ts)) / (2 Ts) = P' + Ts^2 P'''/6 + ...; its Ts^2 term is
+    # folded into the P''' coefficient: -Ts/12 P' + Ts^3/720 P''' = -Ts/12 CD + 11 Ts^3/720 P'''
+    cd = (p_next - explicit[-1]) / (2.0 * symbol_interval)
+    remainder = ((int_model + corr) / symbol_interval + 0.5 * p_k - symbol_interval / 12.0 * cd
+                 + 11.0 * symbol_interval**3 / 720.0 * m * (h**3 + 3.0 * h * dh + ddh))
     return jnp.sum(explicit) + remainder
 
 
