@@ -165,7 +165,7 @@ def shadowed_hits(emitters, centres, radii, diffusion, degradation, symbol_inter
     * kept-sum total per receiver: max relative error 8.3 % (the hidden 3 um sphere close behind a 4 um one;
       particle SE 0.7 %), 4.1 % (half-hidden receiver next to a near emitter), 3.2 % (small sphere beside a large
       one), 2.9 % (close pair), 2.1 % (one behind another), <= 1.9 % elsewhere. The model is biased LOW for
-      shadowed receivers; the receiver nearest each emitter is within 1 % everywhere;
+      receivers with a close or shadowing neighbour (every error above 1.5 % is an under-count);
     * per slot: max absolute error 0.0016 (close pair, slot 1; particle SE 0.0002), <= 0.0009 elsewhere.
 
     Eventual split (``hits.sum + tail``, k = 0) against the exact Kelvin image series: side by side -0.1 % /
