@@ -63,7 +63,7 @@ def ball_quadrature(t, a, rho, diff=D):
 
 def assert_matches_printed(values, printed):
     """Each value agrees with a printed decimal string to within half a unit of its last printed digit."""
-    for v, text in zip(values, printed):
+    for v, text in zip(values, printed, strict=True):
         mantissa = text.lower().split("e")[0]
         exponent = int(text.lower().split("e")[1]) if "e" in text.lower() else 0
         decimals = len(mantissa.split(".")[1]) if "." in mantissa else 0
@@ -75,7 +75,8 @@ def test_cdf_reference_check_points():
     # Yilmaz, Heren, Tugcu, Chae 2014 base case; expected recomputed with scipy.special, and that recomputation is
     # itself compared with the [computed] values printed in references.md (to their printed digits)
     times = np.array([0.01, 0.05, 0.1, 0.5, 1.0, 5.0, 10.0, 100.0])
-    printed = ["3.628e-5", "0.0379957", "0.1047913", "0.2873561", "0.3457665", "0.4295801", "0.4500752", "0.4841751"]
+    printed = ["3.628e-5", "0.0379957", "0.1047913", "0.2873561", "0.3457665", "0.4295801", "0.4500752",
+               "0.4841751"]
     expected = ref_cdf(times)
     assert_matches_printed(expected, printed)
     np.testing.assert_allclose(np.asarray(lone.absorbing_cdf(times, R, GAP, D)), expected, rtol=1e-13)
@@ -93,7 +94,7 @@ def test_cdf_equals_quadrature_of_density(k):
     # F(t) = int_0^t f(s) e^{-ks} ds, scipy.integrate.quad of the published density (Yilmaz 2014; Heren 2015)
     times = np.array([0.02, 0.3, 2.0, 40.0])
     got = np.asarray(lone.absorbing_cdf(times, R, GAP, D, k))
-    for t, g in zip(times, got):
+    for t, g in zip(times, got, strict=True):
         val, _ = integrate.quad(ref_density, 0.0, t, args=(k,), epsabs=0.0, epsrel=1e-12, limit=200,
                                 points=[GAP**2 / (6 * D)] if t > GAP**2 / (6 * D) else None)
         assert g == pytest.approx(val, rel=1e-9)
@@ -125,7 +126,7 @@ def test_degradation_limit_and_complement(k):
     surv = np.asarray(lone.absorbing_survival(times, R, GAP, D, k))
     np.testing.assert_allclose(cdf + surv, total, rtol=1e-13)
     # the complementary form: survival = int_t^inf f e^{-ks} ds (scipy quad), accurate even when tiny
-    for t, s in zip(times, surv):
+    for t, s in zip(times, surv, strict=True):
         val, _ = integrate.quad(ref_density, t, np.inf, args=(k,), epsabs=0.0, epsrel=1e-12, limit=400)
         assert s == pytest.approx(val, rel=1e-8, abs=1e-300)
 
@@ -136,7 +137,8 @@ def test_cdf_at_zero_and_degradation_zero_is_exact():
     t = np.array([0.01, 0.3, 7.0])
     # k = 0: exactly r/(r+d) erfc(d / sqrt(4 D t)) evaluated by the same jax erfc (Yilmaz et al. 2014)
     exact = A * jax.scipy.special.erfc(GAP / jnp.sqrt(4 * D * jnp.asarray(t)))
-    np.testing.assert_allclose(np.asarray(lone.absorbing_cdf(t, R, GAP, D, 0.0)), np.asarray(exact), rtol=1e-14)  # rounding only
+    got = np.asarray(lone.absorbing_cdf(t, R, GAP, D, 0.0))
+    np.testing.assert_allclose(got, np.asarray(exact), rtol=1e-14)  # rounding only
 
 
 # ---------------------------------------------------------------------------------------------- passive
@@ -248,8 +250,8 @@ def test_passive_tail_against_long_sum(k):
             b = (rho**2 + 0.6 * RA[j] ** 2) / (4 * D)
             t_end = (mem + 1 + n) * ts + OFF[j]
             brute += c * (2 * t_end**-0.5 - 2 / 3 * b * t_end**-1.5) / ts + 0.5 * c * t_end**-1.5
-        # k > 0: the long sum is complete (e^-60 left), so only rounding separates the two; k = 0: the brute force's
-        # own error (the numpy form cancels as ~1e-16 (s/a)^2 at late times, plus its remainder) is ~1e-10
+        # k > 0: the long sum is complete (e^-60 left), so only rounding separates the two; k = 0: the brute
+        # force's own error (the numpy form cancels as ~1e-16 (s/a)^2 at late times, plus its remainder) is ~1e-10
         assert float(tail[i, j]) == pytest.approx(brute, rel=1e-9 if k == 0.0 else 1e-12), (i, j)
 
 
@@ -263,10 +265,10 @@ def test_cdf_and_passive_gradients_vs_finite_differences(k):
     args = np.array([0.2, R, GAP, D, k])
     for fn, pt in ((lone.absorbing_cdf, args), (lone.passive_probability, np.array([0.2, 3e-6, 9e-6, D, k])),
                    (lone.passive_probability, np.array([0.04, 4e-6, 2e-6, D, k]))):
-        grads = jax.grad(lambda p: fn(*p))(jnp.asarray(pt))
+        grads = jax.grad(lambda p, fn=fn: fn(*p))(jnp.asarray(pt))
         assert np.all(np.isfinite(grads))
         for n in range(5):
-            def along(v, n=n):
+            def along(v, n=n, fn=fn, pt=pt):
                 q = pt.copy()
                 q[n] = v
                 return float(fn(*q))
@@ -307,7 +309,7 @@ def test_lone_hits_gradients_vs_finite_differences():
                 assert np.all(np.isfinite(g)), (which, n)
                 flat = np.atleast_1d(np.asarray(p[n], dtype=float)).ravel()
                 for idx in range(flat.size):
-                    def along(v, n=n, idx=idx, which=which):
+                    def along(v, n=n, idx=idx, which=which, p=p, flat=flat):
                         q = list(p)
                         arr = flat.copy()
                         arr[idx] = v

@@ -41,7 +41,8 @@ def test_lone_response_shapes_values_and_notes():
             d, r = gap(sc, i, j), sc.receiver_radii[j]
             # eventual capture r/(r+d) (Yilmaz et al. 2014); first slot r/(r+d) erfc(d/sqrt(4 D Ts))
             assert res.hits[i, j].sum() + res.tail[i, j] == pytest.approx(r / (r + d), rel=1e-13)
-            assert res.hits[i, j, 0] == pytest.approx(r / (r + d) * special.erfc(d / np.sqrt(4 * D * 0.3)), rel=1e-13)
+            first = r / (r + d) * special.erfc(d / np.sqrt(4 * D * 0.3))
+            assert res.hits[i, j, 0] == pytest.approx(first, rel=1e-13)
         # passive receiver sampled at l Ts + 0.1 s (erfc form, reference sheet)
         rho, a, t = np.linalg.norm(sc.emitter_positions[i] - sc.receiver_centres[2]), 4e-6, 0.1
         s = np.sqrt(4 * D * t)
@@ -109,3 +110,27 @@ def test_shadowed_dispatch_keeps_passive_lone_and_reorders():
     np.testing.assert_allclose(res.hits[:, :2], np.asarray(h), rtol=1e-13)
     # shadowing only removes molecules: each absorbing receiver catches at most its lone eventual capture
     assert np.all(res.hits[:, :2].sum(-1) + res.tail[:, :2] <= lone.hits[:, :2].sum(-1) + lone.tail[:, :2] + 1e-12)
+
+
+def test_particles_step_limit_is_an_input_error():
+    pytest.importorskip("capacity.physics.particles")
+    sc = scenario(memory=3)
+    # (L+1) Ts / time_step = 4 * 0.3 / 1e-7 = 1.2e7 steps > 1e6
+    with pytest.raises(InputError, match="channel.memory") as err:
+        channel_response(sc, "particles", time_step=1e-7, particles=10)
+    assert "time_step" in str(err.value)
+
+
+@pytest.mark.slow
+def test_particles_dispatch_and_overrides():
+    pytest.importorskip("capacity.physics.particles")
+    sc = scenario(memory=3, particles=50, seed=1)
+    a = channel_response(sc, "particles", particles=1000, seed=3)
+    b = channel_response(sc, "particles", particles=1000, seed=4)
+    lone = channel_response(sc, "lone")
+    assert a.model == "particles" and a.stderr.shape == a.hits.shape == (2, 3, 4)
+    assert any("1000 molecules" in n and "seed 3" in n for n in a.notes)
+    assert not np.array_equal(a.hits, b.hits)  # the seed override reaches the simulator
+    # Bernoulli standard errors sqrt(p (1-p) / N) (common practice)
+    np.testing.assert_allclose(a.stderr, np.sqrt(a.hits * (1 - a.hits) / 1000), rtol=1e-12)
+    np.testing.assert_allclose(a.tail[:, 2], lone.tail[:, 2], rtol=1e-14)  # passive tails from the closed form

@@ -60,7 +60,8 @@ def _core(x, w):
 
     Phi without overflow; Phic = exp(-2 x sqrt(w)) - Phi by a form without cancellation in each region
     (erf(x) when w = 0); beta = [erfcx(x-s) - erfcx(x+s)] exp(-x^2-w) / (2 s) >= 0, s = sqrt(w), smooth and even
-    in s (Taylor series below s = 1e-3, erfcx derivatives from y' = 2xy - 2/sqrt(pi), y^(n+1) = 2x y^(n) + 2n y^(n-1)).
+    in s (Taylor series below s = 1e-3, erfcx derivatives from y' = 2xy - 2/sqrt(pi),
+    y^(n+1) = 2x y^(n) + 2n y^(n-1)).
     """
     s = jnp.sqrt(w)
     e = jnp.exp(-x * x - w)
@@ -74,7 +75,8 @@ def _core(x, w):
     xs, ss = jnp.where(small, x, 0.0), jnp.where(small, s, 0.0)
     xss = 2.0 * xs * ss
     b2 = -jnp.sinh(xss) + 0.5 * (jnp.exp(-xss) * erf(xs - ss) + jnp.exp(xss) * erf(xs + ss))
-    phic = jnp.where(zero, erf(x), jnp.where(ge, jnp.where(small, b2, eq - 0.5 * e * (ym + yp)), 0.5 * e * (ym - yp)))
+    early = jnp.where(small, b2, eq - 0.5 * e * (ym + yp))
+    phic = jnp.where(zero, erf(x), jnp.where(ge, early, 0.5 * e * (ym - yp)))
     big = s >= _SIGMA_SERIES
     bb = jnp.where(ge, e * (ym - yp), 2.0 * eq - e * (ym + yp))
     direct = bb / (2.0 * jnp.where(big, s, 1.0))
@@ -204,7 +206,8 @@ def _passive_undegraded(t, radius, distance, diffusion):
     s2 = 4.0 * diffusion * t
     s = jnp.sqrt(s2)
     a, rho = radius, distance
-    # exact erfc form: 1/2[erfc((rho-a)/s) - erfc((rho+a)/s)] - sqrt(Dt/pi) e^{-(rho-a)^2/s^2} (4a/s^2) g(4 rho a/s^2)
+    # exact erfc form:
+    # 1/2[erfc((rho-a)/s) - erfc((rho+a)/s)] - sqrt(Dt/pi) e^{-(rho-a)^2/s^2} (4a/s^2) g(4 rho a/s^2)
     z = 4.0 * rho * a / s2
     tiny = z < 1e-6
     zs = jnp.where(tiny, 1.0, z)
@@ -233,7 +236,8 @@ def passive_probability(t, radius, distance, diffusion, degradation=0.0):
                        - sqrt(D t/pi)/rho [exp(-(rho-a)^2/s^2) - exp(-(rho+a)^2/s^2)]},   s = sqrt(4 D t)
 
     the second bracket written as exp(-(rho-a)^2/s^2) (1 - exp(-z))/z * 4 a/s^2 (z = 4 rho a / s^2), which removes
-    the singularity at rho = 0. When a/s is small (late times) the two terms cancel (relative error ~ 1e-16 s^2/a^2),
+    the singularity at rho = 0. When a/s is small (late times) the two terms cancel (relative error
+    ~ 1e-16 s^2/a^2),
     so there the ball-mean (Pizzetti) series to a^6 is used (switch at (a/s)^2 max(1, rho^2/s^2) < 4e-4, series
     error below ~1e-15 relative). Dimensionless.
     """
@@ -245,7 +249,7 @@ def passive_probability(t, radius, distance, diffusion, degradation=0.0):
 
 
 def _passive_tail_times(start, symbol_interval, terms: int):
-    """Times at which :func:`_passive_tail` needs P: ``terms`` explicit samples, t_K, t_K + Ts, quadrature nodes."""
+    """Times where :func:`_passive_tail` needs P: ``terms`` explicit samples, t_K, t_K + Ts, quadrature nodes."""
     tk = start + float(terms) * symbol_interval
     explicit = start + jnp.arange(terms, dtype=jnp.float64) * symbol_interval
     return jnp.concatenate([explicit, tk[None], (tk + symbol_interval)[None], tk / jnp.asarray(_GL_V) ** 2])
@@ -258,7 +262,8 @@ def _passive_model_point(radius, distance, diffusion, degradation, symbol_interv
     return jnp.sqrt(b / tk), degradation * tk, 2.0 * jnp.sqrt(b) * _sqrt_rate(degradation), b
 
 
-def _passive_tail(values, phic_model, radius, distance, diffusion, degradation, symbol_interval, start, terms: int):
+def _passive_tail(values, phic_model, radius, distance, diffusion, degradation, symbol_interval, start,
+                  terms: int):
     """sum_{j >= 0} P(start + j Ts) from P at :func:`_passive_tail_times` (``values``) and ``phic_model`` =
     Phic at :func:`_passive_model_point`.
 
@@ -315,8 +320,8 @@ def _pair_hits(emitter, centre, radius, passive, offset, diffusion, degradation,
     times = jnp.concatenate([edges[:-1] + offset, _passive_tail_times(start, symbol_interval, PASSIVE_TAIL_TERMS)])
     values = passive_probability(times, radius, rho, diffusion, degradation)
     samples = values[: memory + 1]
-    sample_tail = _passive_tail(values[memory + 1:], phic[-1], radius, rho, diffusion, degradation, symbol_interval,
-                                start, PASSIVE_TAIL_TERMS)
+    sample_tail = _passive_tail(values[memory + 1:], phic[-1], radius, rho, diffusion, degradation,
+                                symbol_interval, start, PASSIVE_TAIL_TERMS)
     return jnp.where(passive, samples, absorb), jnp.where(passive, sample_tail, absorb_tail)
 
 

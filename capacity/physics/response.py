@@ -69,7 +69,8 @@ def layout_arrays(scenario) -> Layout:
     for j, rec in enumerate(scenario.receivers):
         _positive(f"receiver[{j}].radius", rec.radius)
         if rec.kind not in ("absorbing", "passive"):
-            raise InputError(f"receiver[{j}].kind", rec.kind, "unknown receiver kind", "use 'absorbing' or 'passive'")
+            raise InputError(f"receiver[{j}].kind", rec.kind, "unknown receiver kind",
+                             "use 'absorbing' or 'passive'")
         passive[j] = rec.kind == "passive"
         off = ts if rec.sample_offset is None else float(rec.sample_offset)
         if not (0.0 < off <= ts):
@@ -108,13 +109,15 @@ def auto_memory(lay: Layout, tolerance: float):
     if np.any(last >= MEMORY_CAP):
         i, j = np.argwhere(last >= MEMORY_CAP)[0]
         raise InputError("channel.memory", "auto",
-                         f"emitter {i} -> receiver {j} is still above {tolerance:g} x its peak after {MEMORY_CAP} lags",
-                         "lengthen channel.symbol_interval, raise channel.memory_tolerance, or give memory explicitly")
+                         f"emitter {i} -> receiver {j} is still above {tolerance:g} x its peak after "
+                         f"{MEMORY_CAP} lags",
+                         "lengthen channel.symbol_interval, raise channel.memory_tolerance, or give memory "
+                         "explicitly")
     return int(last.max()), hits, tail
 
 
 def _truncate(hits, tail, memory: int):
-    """Lone response at a shorter memory from a longer one: the dropped slots join the tail (a sum of positives)."""
+    """Lone response at a shorter memory from a longer one; the dropped slots join the tail (sum of positives)."""
     return hits[..., : memory + 1].copy(), tail + hits[..., memory + 1:].sum(axis=-1)
 
 
