@@ -135,12 +135,14 @@ def isi_bounds(hits, background, symbols, input_law, *, interference=None, n_sam
     n = int(n_samples)
     per_lag = np.einsum("se,erl->lsr", sym, h)  # (L+1, S, R)
     rng = np.random.default_rng(int(seed))
-    digits = state_digits(S, L)
-    pi = np.prod(p[digits], axis=1) if L else np.ones(1)
-    mu = branch_means(h, base, sym, L)  # (S^L, S, R)
     out: dict[str, RateResult] = {}
-    grid = _grid(mu.reshape(-1, R).max(axis=0))
-    small = S ** (L + 1) * grid.shape[0] <= exact_limit
+    # largest mean per receiver over all (past, current) symbol combinations, without enumerating them
+    grid = _grid(base + per_lag.max(axis=1).sum(axis=0))
+    small = S ** (L + 1) * grid.shape[0] <= exact_limit  # Python integers: no overflow for long memories
+    if small:
+        digits = state_digits(S, L)
+        pi = np.prod(p[digits], axis=1) if L else np.ones(1)
+        mu = branch_means(h, base, sym, L)  # (S^L, S, R)
     tag = f"{grid.shape[0]} output points per slot"
 
     # --- sbs: ISI treated as noise --------------------------------------------------------------------
