@@ -45,6 +45,7 @@ from capacity.errors import InputError
 JITTER = 0.7
 MAX_MEMORY = 40
 MAX_PASTS = 256
+MAX_BOUND_STATES = 1024
 
 
 class DesignResult(NamedTuple):
@@ -247,7 +248,8 @@ def run_start(obj: Objective, u0: dict, *, steps, learning_rate, method="rprop",
 
 
 def polish(scenario, problem: Problem, phys: dict, law, *, n_symbols=20_000, n_runs=4, seed=0):
-    """Trellis information rate (value, stderr) and (lower, upper) bounds at a design, bits per symbol."""
+    """Trellis information rate (RateResult), lower and upper bounds (bits per symbol), mean molecules per
+    symbol, and a note, at a design."""
     from capacity.information.bounds import isi_bounds
     from capacity.information.trellis import information_rate
 
@@ -260,11 +262,20 @@ def polish(scenario, problem: Problem, phys: dict, law, *, n_symbols=20_000, n_r
     background = np.asarray(problem.background, dtype=float)
     rate = information_rate(hits, background, symbols, law, interference=interference, n_symbols=n_symbols,
                             n_runs=n_runs, seed=seed)
+    n_sym, lags, note = symbols.shape[0], hits.shape[2] - 1, ""
+    kept = lags
+    while n_sym ** kept > MAX_BOUND_STATES:
+        kept -= 1
+    if kept < lags:  # the bounds enumerate S^L pasts: later lags enter as mean interference
+        interference = interference + (law @ symbols) @ hits[:, :, kept + 1:].sum(axis=-1)
+        hits = hits[:, :, :kept + 1]
+        note = (f"bounds keep {kept} of {lags} lags exactly (S^L <= {MAX_BOUND_STATES}); later lags enter them as "
+                "mean interference, so they bound that reduced channel")
     bounds = isi_bounds(hits, background, symbols, law, interference=interference, seed=seed + 1)
     lower = max(bounds["sbs"].rate, bounds["dfe"].rate)
     if "lower bound" in rate.method:
         lower = max(lower, rate.rate)
-    return rate, float(lower), float(bounds["mf"].rate), float(law @ symbols.sum(axis=1))
+    return rate, float(lower), float(bounds["mf"].rate), float(law @ symbols.sum(axis=1)), note
 
 
 def optimise_design(scenario, tune, objective: str, *, rate: str = "envelope", starts: int = 4, steps: int = 200,
@@ -331,13 +342,19 @@ def optimise_design(scenario, tune, objective: str, *, rate: str = "envelope", s
     polished = stderr = lower = upper = float("nan")
     if do_polish:
         ts = float(np.asarray(layout(space, best_phys, problem.base_symbols).symbol_interval))
-        rr, lo_b, up_b, mol = polish(scenario, problem, best_phys, best.law, n_symbols=polish_symbols,
-                                     seed=int(scenario.channel.seed) + seed)
-        polished = objective_value(objective, rr.rate, mol, ts)
-        stderr = objective_value(objective, rr.stderr, mol, ts)
-        lower = objective_value(objective, lo_b, mol, ts)
-        upper = objective_value(objective, up_b, mol, ts)
-        notes.append(f"polish: {rr.method}; {rr.message}")
+        try:
+            rr, lo_b, up_b, mol, note = polish(scenario, problem, best_phys, best.law, n_symbols=polish_symbols,
+                                               seed=int(scenario.channel.seed) + seed)
+        except (InputError, ValueError, MemoryError) as exc:  # the design itself is kept; say why
+            notes.append(f"polish skipped: {exc}")
+        else:
+            polished = objective_value(objective, rr.rate, mol, ts)
+            stderr = objective_value(objective, rr.stderr, mol, ts)
+            lower = objective_value(objective, lo_b, mol, ts)
+            upper = objective_value(objective, up_b, mol, ts)
+            notes.append(f"polish: {rr.method}; {rr.message}")
+            if note:
+                notes.append(note)
     n_conv = sum(r[2] for r in results)
     message = (f"best of {starts} start(s): {objective} = {best.value:.6g} ({rate} rate); "
                f"{n_conv}/{starts} start(s) met the stopping rule; {obj.evaluations} evaluations")
