@@ -119,6 +119,7 @@ def test_isi_as_noise_value_and_gradient():
     assert ev.value == pytest.approx(expected / (0.5 * a), rel=1e-9)
 
 
+@pytest.mark.slow
 def test_envelope_with_mean_interference_gradient_at_fixed_law():
     # With ISI as mean interference the law enters the channel; the gradient is exact with the law frozen.
     problem = build_problem(scenario(memory=3, residual="interference"), ("symbol_interval", "gap"),
