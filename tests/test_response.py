@@ -134,3 +134,19 @@ def test_particles_dispatch_and_overrides():
     # Bernoulli standard errors sqrt(p (1-p) / N) (common practice)
     np.testing.assert_allclose(a.stderr, np.sqrt(a.hits * (1 - a.hits) / 1000), rtol=1e-12)
     np.testing.assert_allclose(a.tail[:, 2], lone.tail[:, 2], rtol=1e-14)  # passive tails from the closed form
+
+
+def test_shadowed_validity_notes_warn_once():
+    shadowed = pytest.importorskip("capacity.physics.shadowed")
+    if not hasattr(shadowed, "validity_notes"):
+        pytest.skip("shadowed.validity_notes not written yet")
+    sc = scenario(memory=5, response="shadowed")
+    small = Receiver("far", (-14e-6, -6e-6, 0.0), 1.5e-6)  # radius ratio 5 / 1.5 = 3.3: outside the valid range
+    sc = sc.replace(receivers=(sc.receivers[0], small, sc.receivers[2]))
+    expected = shadowed.validity_notes(sc.emitter_positions, sc.receiver_centres[:2], sc.receiver_radii[:2], D,
+                                       0.0)
+    assert expected  # the layout is outside the range the shadowed model states
+    with pytest.warns(UserWarning) as record:
+        res = channel_response(sc)
+    assert len([w for w in record if "validated range" in str(w.message)]) == 1
+    assert all(note in res.notes for note in expected)
