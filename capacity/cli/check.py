@@ -25,5 +25,23 @@ def run(args) -> int:
 
     scenario = load(args.scenario)
     summary = summarise(scenario)
-    print(dump_json(summary) if args.json else format_summary(summary))
+    summary["response_model_notes"] = model_notes(scenario)
+    if args.json:
+        print(dump_json(summary))
+    else:
+        print(format_summary(summary))
+        for note in summary["response_model_notes"]:
+            print(f"model note: {note}")
     return 0
+
+
+def model_notes(scenario) -> list[str]:
+    """Where the layout lies outside the range in which the shadowed model's accuracy was measured."""
+    from capacity.physics.shadowed import validity_notes
+
+    absorbing = [r for r in scenario.receivers if r.kind == "absorbing"]
+    if len(absorbing) < 2 or scenario.channel.response != "shadowed":
+        return []
+    return list(validity_notes(scenario.emitter_positions, [r.centre for r in absorbing],
+                               [r.radius for r in absorbing], scenario.medium.diffusion,
+                               scenario.medium.degradation))
