@@ -19,6 +19,7 @@ emitters, ``R`` receivers, ``Y`` grid outputs.
 
 from __future__ import annotations
 
+import math
 from typing import NamedTuple
 
 import jax.numpy as jnp
@@ -174,7 +175,7 @@ def _marginal_pmf(counts, probs_j, bg_j, tol_tail):
         if n > 0 and p > 0:
             pmf = np.convolve(pmf, stats.binom.pmf(np.arange(n + 1), n, p))
     if bg_j > 0:
-        top = int(stats.poisson.isf(tol_tail * 1e-6, bg_j)) + 1
+        top = int(math.ceil(bg_j + 12.0 * math.sqrt(bg_j) + 40.0))  # tail beyond is < 1e-25
         pmf = np.convolve(pmf, stats.poisson.pmf(np.arange(top + 1), bg_j))
     return pmf
 

@@ -157,7 +157,8 @@ def solve(w, negent, b, s, valid, p0, tol, max_iter, newton: bool = True) -> Sol
     zero = jnp.array(0)
     st = lax.while_loop(cond, body, (p0, ev0, zero, zero, p0, ev0, zero, jnp.asarray(1e-3, p0.dtype)))
     _, _, it, nsteps, best_p, best_ev, since, _ = st
-    return Solution(best_p, best_ev, it, nsteps, since >= 2000, _cost_derivative(best_p, w, b))
+    slope = lax.cond(jnp.any(b > 0), lambda: _cost_derivative(best_p, w, b), lambda: jnp.zeros((), p0.dtype))
+    return Solution(best_p, best_ev, it, nsteps, since >= 2000, slope)
 
 
 def _cost_derivative(p, w, b, support_threshold=1e-12):

@@ -95,26 +95,32 @@ def _prepare(transition, tol: float) -> _Prepared:
     log_s = math.log2(n_sym) if n_sym > 1 else 0.0
     # lump the lightest output columns while every row loses at most `budget` of its mass
     budget = 1e-3 * tol / max(log_s, 1.0)
-    order = np.argsort(w.max(axis=0), kind="stable")
-    lumped_rows = np.cumsum(w[:, order], axis=1)
-    n_lump = int(np.searchsorted(lumped_rows.max(axis=0), budget, side="right"))
-    n_lump = min(n_lump, n_out - 1)
-    keep = np.sort(order[n_lump:])
-    lumped = tail + (lumped_rows[:, n_lump - 1] if n_lump > 0 else 0.0)
-    kept = w[:, keep]
-    # rows are completed to 1 with the overflow column (the mass is tail + lumped, or 1 - row sum)
-    overflow = np.maximum(1.0 - kept.sum(axis=1), 0.0) if n_lump > 0 or tail.max() > 0 else None
-    if overflow is not None and overflow.max() > 0:
-        kept = np.concatenate([kept, overflow[:, None]], axis=1)
-    negent = special.xlogy(kept, kept).sum(axis=1)
+    col_max = w.max(axis=0)
+    candidates = np.flatnonzero(col_max <= budget)
+    n_lump = 0
+    lumped = tail.copy()
+    keep = np.ones(n_out, dtype=bool)
+    if candidates.size:
+        order = candidates[np.argsort(col_max[candidates], kind="stable")]
+        cum = np.cumsum(w[:, order], axis=1)
+        n_lump = min(int(np.searchsorted(cum.max(axis=0), budget, side="right")), n_out - 1)
+        if n_lump > 0:
+            keep[order[:n_lump]] = False
+            lumped = lumped + cum[:, n_lump - 1]
+    n_kept = n_out - n_lump
+    need_overflow = n_lump > 0 or tail.max() > 0
+    n_cols = n_kept + int(need_overflow)
     # pad to bucket sizes so that a few compiled kernels serve every shape (zero rows/columns are inert)
-    s_pad, y_pad = _bucket(n_sym, 8), _bucket(kept.shape[1], 64)
+    s_pad, y_pad = _bucket(n_sym, 8), _bucket(n_cols, 64)
     w_pad = np.zeros((s_pad, y_pad))
-    w_pad[:n_sym, : kept.shape[1]] = kept
+    w_pad[:n_sym, :n_kept] = w[:, keep] if n_lump else w
+    if need_overflow:  # rows completed to 1 by the overflow output (mass = tail + lumped columns)
+        w_pad[:n_sym, n_kept] = np.maximum(1.0 - w_pad[:n_sym, :n_kept].sum(axis=1), 0.0)
+    real = w_pad[:n_sym, :n_cols]
     neg_pad = np.zeros(s_pad)
-    neg_pad[:n_sym] = negent
+    neg_pad[:n_sym] = special.xlogy(real, real).sum(axis=1)
     return _Prepared(jnp.asarray(w_pad), jnp.asarray(neg_pad), jnp.asarray(np.arange(s_pad) < n_sym), n_sym,
-                     float(lumped.max()) * log_s, kept.shape[1], n_out)
+                     float(lumped.max()) * log_s, n_cols, n_out)
 
 
 def _bucket(n: int, minimum: int) -> int:

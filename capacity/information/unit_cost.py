@@ -23,32 +23,37 @@ __all__ = ["capacity_per_unit_cost", "poisson_unit_cost"]
 
 
 def _rows(transition):
+    """(S, Y) matrix, its log (exact log_matrix of a Transition when given) and the truncated tail (S,)."""
     if hasattr(transition, "matrix") and hasattr(transition, "truncated_mass"):
         w = np.asarray(transition.matrix, dtype=float)
+        log_w = np.asarray(transition.log_matrix, dtype=float)
         tail = np.clip(np.asarray(transition.truncated_mass, dtype=float), 0.0, 1.0)
     else:
         w = np.asarray(transition, dtype=float)
         if w.ndim != 2:
             raise InputError("transition", w.shape, "must be an (S, Y) matrix", "pass a Transition or 2-D array")
+        with np.errstate(divide="ignore"):
+            log_w = np.log(w)
         tail = np.clip(1.0 - w.sum(axis=1), 0.0, 1.0)
         tail = np.where(tail > 1e-13, tail, 0.0)
     if w.ndim != 2 or not np.all(np.isfinite(w)) or np.any(w < 0):
         raise InputError("transition", w.shape, "must be an (S, Y) matrix of probabilities",
                          "pass a Transition or a 2-D array of W(y|x)")
-    # the truncated mass is one overflow output (as in blahut_arimoto): D can only shrink (data processing)
-    return np.concatenate([w, tail[:, None]], axis=1)
+    return w, log_w, tail
 
 
 def capacity_per_unit_cost(transition, cost) -> tuple[float, int]:
     """sup_x D(W_x || W_0) / b(x) in bits per cost unit, and the maximising symbol's index.
 
-    transition : Transition or (S, Y) array W(y|x); a truncated tail is lumped into one overflow output,
-        so the value is a lower bound on the untruncated channel's (exact when nothing is truncated).
+    transition : Transition or (S, Y) array W(y|x). A truncated tail enters as one lumped output (data
+        processing: D can only shrink); if the free symbol's own tail is 0 it is left out (its part of D
+        is then of the order of the truncated mass). Uses ``log_matrix`` when given, so tiny
+        probabilities keep their digits.
     cost : (S,) non-negative costs; exactly one free symbol (cost 0), or several with identical rows.
     Raises InputError when there is no free symbol, when distinct free symbols exist (information at no
     cost: unbounded), or when some D is infinite.
     """
-    w = _rows(transition)
+    w, log_w, tail = _rows(transition)
     b = np.asarray(cost, dtype=float)
     if b.shape != (w.shape[0],) or not np.all(np.isfinite(b)) or np.any(b < 0):
         raise InputError("cost", b.shape, f"must be {w.shape[0]} finite non-negative costs", "one per symbol")
@@ -64,14 +69,18 @@ def capacity_per_unit_cost(transition, cost) -> tuple[float, int]:
     paid = np.flatnonzero(b > 0)
     if paid.size == 0:
         raise InputError("cost", b, "every symbol is free", "give the signalling symbols their cost")
-    with np.errstate(divide="ignore"):
-        outside = (w[paid] > 0) & (zero[None, :] == 0)
+    log_zero = log_w[free[0]]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        outside = (w[paid] > 0) & ~np.isfinite(log_zero)[None, :]
         if np.any(outside):
             bad = int(paid[np.flatnonzero(outside.any(axis=1))[0]])
             raise InputError("transition", f"symbol {bad}", "produces outputs the free symbol never produces, "
                              "so D(W_x || W_0) and the capacity per unit cost are infinite",
                              "model background/dark counts so the free symbol can produce every output")
-        d = special.xlogy(w[paid], w[paid]).sum(axis=1) - special.xlogy(w[paid], zero[None, :]).sum(axis=1)
+        terms = np.where(w[paid] > 0, w[paid] * (log_w[paid] - log_zero[None, :]), 0.0)
+        d = terms.sum(axis=1)
+        if tail[free[0]] > 0:  # the truncated tail as one lumped output: D can only shrink (data processing)
+            d = d + special.xlogy(tail[paid], tail[paid]) - special.xlogy(tail[paid], tail[free[0]])
     ratio = d / b[paid] / math.log(2.0)
     k = int(np.argmax(ratio))
     return float(ratio[k]), int(paid[k])
