@@ -167,6 +167,9 @@ def log_poisson_grid(means, lo, sizes: tuple):
     return total.reshape(means.shape[:-1] + (-1,))
 
 
+_log_poisson_grid_jit = jax.jit(log_poisson_grid, static_argnums=2)
+
+
 def mutual_information_bits(law, log_w):
     """I(X;Y) in bits for input law (S,) and log transition (S, Y): sum_x p_x sum_y W ln(W / sum_x' p_x' W)."""
     log_q = logsumexp(log_w, axis=0, b=law[:, None])
@@ -323,7 +326,7 @@ class Objective:
         for _ in range(passes):
             means = np.asarray(self._means(arrays, jnp.asarray(law)))[:, 0, :]
             lo, sizes, _ = choose_grid(means)
-            log_w = np.asarray(log_poisson_grid(jnp.asarray(means), jnp.asarray(lo), sizes))
+            log_w = np.asarray(_log_poisson_grid_jit(jnp.asarray(means), jnp.asarray(lo), sizes))
             w = np.exp(log_w)  # rows sum to 1 - truncated mass; the solver accounts for the missing mass
             budget = problem.budget
             res = blahut_arimoto(w, cost=cost if budget is not None else None, budget=budget, tol=1e-10)
