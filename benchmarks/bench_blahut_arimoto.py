@@ -40,7 +40,7 @@ def numpy_ba(w, b=None, s=0.0, p=None, tol=TOL, max_iter=200_000):
     b = np.zeros(n_sym) if b is None else b
     p = np.full(n_sym, 1.0 / n_sym) if p is None else p
     negent = special.xlogy(w, w).sum(axis=1)
-    for it in range(1, max_iter + 1):
+    for it in range(1, max_iter + 1):  # noqa: B007  (the count is returned)
         q = p @ w
         d = negent - w @ np.log(np.maximum(q, 1e-300))
         info = p @ d
@@ -59,7 +59,6 @@ def numpy_budget(w, b, budget, tol=TOL):
     if p @ b <= budget:
         return info, p, its
     lo, hi, s = 0.0, None, 1e-3
-    p_lo, p_hi = p, None
     for _ in range(200):
         p, info, gap, n = numpy_ba(w, b, s, p, tol)
         its += n
@@ -67,9 +66,9 @@ def numpy_budget(w, b, budget, tol=TOL):
         if abs(cost - budget) <= 1e-9 * budget:
             break
         if cost > budget:
-            lo, p_lo = s, p
+            lo = s
         else:
-            hi, p_hi = s, p
+            hi = s
         s = 2 * s if hi is None else 0.5 * (lo + hi)
         if hi is not None and hi - lo <= 1e-14 * hi:
             break
@@ -137,7 +136,7 @@ def run() -> dict:
     for levels, top in [(4, 300.0), (4, 900.0), (8, 300.0), (8, 900.0)]:
         tt, _ = _channel(levels, top)
         blahut_arimoto(tt)
-        secs, res = _time(lambda: blahut_arimoto(tt), repeat=2)
+        secs, res = _time(lambda tt=tt: blahut_arimoto(tt), repeat=2)
         scaling.append({"inputs": int(tt.matrix.shape[0]), "outputs": int(tt.matrix.shape[1]),
                         "seconds": secs, "iterations": res.iterations})
     out["scaling"] = scaling

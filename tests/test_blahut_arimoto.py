@@ -182,13 +182,16 @@ def _refined_peak_capacity(peak, background):
 
 @pytest.mark.parametrize(
     "peak, background, ref",
-    [(5.0, 0.0, 1.0252723), (10.0, 0.0, 1.3212870), (5.0, 1.0, 0.73977391), (10.0, 1.0, 1.05723480)],
+    [(5.0, 0.0, 1.0252723),
+     pytest.param(10.0, 0.0, 1.3212870, marks=pytest.mark.slow),
+     pytest.param(5.0, 1.0, 0.73977391, marks=pytest.mark.slow),
+     (10.0, 1.0, 1.05723480)],
 )
 def test_peak_limited_poisson_capacity(peak, background, ref):
     # references sheet [computed] (Shamai 1990 discrete optimum; Cao, Hranilovic, Chen 2014)
     res, grid = _refined_peak_capacity(peak, background)
     assert res.converged, res.message
-    digits = 5e-8 if ref < 1.05 or background else 5e-8
+    digits = 5e-8  # the sheet gives 8 significant digits
     # a grid can only lose capacity (the grid law is a feasible input): lower bound up to the sheet's rounding
     assert res.capacity <= ref + digits
     # the mass points sit within half a fine step of the true ones: the loss is second order (< 1e-7 here)

@@ -155,7 +155,7 @@ def test_binomial_law_with_background_against_monte_carlo():
             pvals = np.array([probs[i, 0], probs[i, 1], 1 - probs[i].sum()])
             counts += rng.multinomial(symbols[s, i], pvals, size=n_mc)[:, :2]
         freq = np.zeros(len(t.outputs))
-        for c, k in zip(*np.unique(counts, axis=0, return_counts=True)):
+        for c, k in zip(*np.unique(counts, axis=0, return_counts=True), strict=True):
             freq[index[tuple(c)]] += k / n_mc
         tv = 0.5 * np.abs(freq - t.matrix[s]).sum()
         assert tv < 0.02  # sampling noise of a 2e5-sample histogram over ~100 cells is ~0.01

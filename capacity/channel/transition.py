@@ -171,7 +171,7 @@ _TINY = 1e-300
 def _marginal_pmf(counts, probs_j, bg_j, tol_tail):
     """Exact pmf of sum_i Binomial(counts[i], probs_j[i]) + Poisson(bg_j) (1-D convolutions)."""
     pmf = np.ones(1)
-    for n, p in zip(counts, probs_j):
+    for n, p in zip(counts, probs_j, strict=True):
         if n > 0 and p > 0:
             pmf = np.convolve(pmf, stats.binom.pmf(np.arange(n + 1), n, p))
     if bg_j > 0:

@@ -63,7 +63,6 @@ def _newton_step(p, ev: Evaluation, w, b, s, valid, mu):
     order form is dp = p (g - nu)) keeps steps bounded where the Hessian is singular (more inputs than
     outputs, nearly collinear rows); mu shrinks after successful steps, so the step becomes pure Newton.
     """
-    n = p.shape[0]
     g = ev.d - s * b
     wn = w / jnp.sqrt(jnp.maximum(ev.q, TINY))[None, :]
     hess = -(wn @ wn.T)
