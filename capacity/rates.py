@@ -21,7 +21,9 @@ class LinkRates(NamedTuple):
     """Rates of one link (bits per symbol unless a name says otherwise).
 
     alphabet : the release vectors used.
-    isi_free : Blahut–Arimoto result on the memoryless channel (lag 0 only plus background).
+    isi_free : Blahut–Arimoto result on the memoryless channel (lag 0 only plus background): the channel as if
+        it were cleared between symbols, counting only in the release slot. When the symbol interval is shorter
+        than the arrival peak, most molecules arrive in later slots and this can fall below the rate with ISI.
     iid_input : (S,) the input law used for the rates with ISI (default: ``isi_free.input_distribution``).
     information_rate : i.i.d. information rate with ISI (forward recursion, or its reduced-state lower bound).
     bounds : {"sbs", "dfe", "mf"} single-letter bounds for the same input law.
@@ -159,6 +161,10 @@ def link_rates(
     truncated = float(np.max(np.asarray(transition.truncated_mass)))
     notes.append(f"ISI-free output grid: {np.shape(transition.matrix)[1]} outputs, largest truncated mass "
                  f"{truncated:.1e}")
+    late = hits[:, :, 1:].sum(axis=-1) > hits[:, :, 0]
+    if np.any(late):
+        notes.append("some pairs deliver more in later slots than in the release slot: the ISI-free capacity "
+                     "(release slot only) understates what the link carries; compare the rate with ISI instead")
 
     law = np.asarray(isi_free.input_distribution if iid_input is None else iid_input, dtype=float)
     law = law / law.sum()
