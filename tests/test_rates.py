@@ -87,3 +87,21 @@ def test_interference_lowers_rate_and_drop_ignores_it():
     # more noise at the same law: the ISI-as-noise bound cannot rise (data-processing; common practice)
     se = keep.bounds["sbs"].stderr + drop.bounds["sbs"].stderr
     assert keep.bounds["sbs"].rate <= drop.bounds["sbs"].rate + 4 * se + 1e-9
+
+
+def test_binomial_counting_is_reported_beside_poisson():
+    """Fixed release counts: exact binomial law. For on-off keying with no background the binomial channel is the
+    Z-channel with p = (1 - h)^N (references.md, 'The same reduction holds for binomial ... counts')."""
+    import dataclasses
+
+    s = _scenario(background=0.0)
+    s = s.replace(channel=dataclasses.replace(s.channel, counting="binomial", background=(0.0,)))
+    n, h = 10, 0.1
+    rates = link_rates(s, _response([[[h]]]), _ook(peak=float(n)), n_symbols=2000, n_runs=4)
+    z = (1 - h) ** n
+    expected = np.log2(1 + (1 - z) * z ** (z / (1 - z)))
+    assert rates.binomial["isi_free_capacity"] == pytest.approx(expected, abs=1e-8)
+    # Poisson thinning gives the Z-channel with p = exp(-N h) instead (references.md, Poisson channels)
+    zp = np.exp(-n * h)
+    assert rates.isi_free.capacity == pytest.approx(np.log2(1 + (1 - zp) * zp ** (zp / (1 - zp))), abs=1e-8)
+    assert rates.binomial["max_tv"] > 0
