@@ -25,7 +25,10 @@ Rates (name them with ``rate=``; every result says which was used):
     so the gradient is the plain derivative.
 
 Objectives: ``bits-per-symbol`` = rate; ``bits-per-second`` = rate / Ts; ``bits-per-molecule`` = rate / M with M
-the mean molecules per symbol of the law (the budget when it binds).
+the mean molecules per symbol of the law (the budget when it binds). Caution: with a budget, bits per molecule
+over the release levels is multimodal — at a binding budget it is C(B)/B, whose gradient favours large, sparsely
+used levels, while levels too small to reach the budget can give a higher C/M — so use several starts, or tune
+without a budget (or check with a grid) when levels and a budget meet.
 
 Output grid: counts ``lo_r .. lo_r + n_r - 1`` per receiver (product grid over receivers), chosen outside the
 gradient from the current means with a margin of 8 standard deviations plus 8 counts, ``n_r`` rounded up to a
