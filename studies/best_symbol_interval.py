@@ -39,8 +39,8 @@ def main(argv=None) -> int:
     args = ap.parse_args(argv)
     started = time.perf_counter()
     scenario = load(args.scenario)
-    grid = np.geomspace(0.03, 1.0, 5 if args.quick else 14)
-    n_symbols = 2_000 if args.quick else 10_000
+    grid = np.geomspace(0.06, 1.0, 4 if args.quick else 8)
+    n_symbols = 2_000 if args.quick else 6_000
     out = Path(args.out)
     out.mkdir(parents=True, exist_ok=True)
     rows = []

@@ -52,8 +52,8 @@ def main(argv=None) -> int:
             best = max(dets, key=lambda d: d["rate"]) if dets else {}
             writer.writerow({**{k: r[k] for k in CSV_FIELDS}, "best_detector": best.get("name"),
                              "detector_ser": best.get("symbol_error_rate"), "detector_rate": best.get("rate")})
-    lines = [f"| scheme | ISI-free capacity | i.i.d. rate with ISI | bounds | bits/s | bits/molecule | "
-             f"best detector (SER, hard rate) |", "|---|---|---|---|---|---|---|"]
+    lines = ["| scheme | ISI-free capacity | i.i.d. rate with ISI | bounds | bits/s | bits/molecule | "
+             "best detector (SER, hard rate) |", "|---|---|---|---|---|---|---|"]
     for r in records:
         dets = [d for d in r["detectors"] if "rate" in d]
         best = max(dets, key=lambda d: d["rate"]) if dets else None

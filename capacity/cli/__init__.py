@@ -34,7 +34,7 @@ def build_parser() -> argparse.ArgumentParser:
     )
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     sub.required = True
-    for name, module_name in COMMANDS.items():
+    for module_name in COMMANDS.values():
         try:
             module = importlib.import_module(module_name)
         except ModuleNotFoundError as exc:  # a stage not built yet

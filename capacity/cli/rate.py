@@ -84,7 +84,7 @@ def format_rates(scenario, response, rates) -> str:
     lines.append(f"  ISI-free capacity: certified gap {cap.gap:.1e} bits; {cap.message}")
     lines.append(f"  rate with ISI: {rates.information_rate.method}; {rates.information_rate.message}")
     law = np.asarray(rates.iid_input)
-    used = [f"{lab} ({p:.3f})" for lab, p in zip(rates.alphabet.labels, law) if p > 1e-4]
+    used = [f"{lab} ({p:.3f})" for lab, p in zip(rates.alphabet.labels, law, strict=True) if p > 1e-4]
     lines.append("  input law: " + ", ".join(used))
     for note in tuple(response.notes) + tuple(rates.notes):
         lines.append(f"  note: {note}")
