@@ -25,6 +25,7 @@ import capacity  # noqa: E402,F401
 from capacity.cli._common import load  # noqa: E402
 from capacity.physics.response import channel_response  # noqa: E402
 from capacity.rates import link_rates  # noqa: E402
+from capacity.report.plots import _log_axis  # noqa: E402
 from capacity.schemes.builders import build_alphabet  # noqa: E402
 
 FIELDS = ("symbol_interval", "memory", "isi_free_capacity", "information_rate", "stderr", "lower_bound",
@@ -94,7 +95,7 @@ def _plot(rows, path):
         ax.plot(ts * 1e3, rate * scale, marker="o", markersize=3, label="i.i.d. rate with ISI")
         ax.fill_between(ts * 1e3, lo * scale, hi * scale, alpha=0.2, label="bounds (sbs/dfe .. mf)")
         ax.plot(ts * 1e3, free * scale, linestyle=":", label="ISI-free capacity")
-        ax.set_xscale("log")
+        _log_axis(ax)
         ax.set_xlabel("symbol interval (ms)")
         ax.set_ylabel(label)
         ax.grid(alpha=0.3, which="both")

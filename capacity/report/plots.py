@@ -64,7 +64,7 @@ def plot_rate_curves(curves, path, *, per_second: bool = False) -> Path:
         ax.fill_between(b, np.asarray(c["lower"]) * scale, np.asarray(c["upper"]) * scale,
                         color=line.get_color(), alpha=0.18, linewidth=0)
         ax.plot(b, np.asarray(c["isi_free"]) * scale, linestyle=":", color=line.get_color(), linewidth=1)
-    ax.set_xscale("log")
+    _log_axis(ax)
     ax.set_xlabel("mean molecules per symbol")
     ax.set_ylabel("bits per second" if per_second else "bits per symbol")
     ax.grid(alpha=0.3, which="both")
@@ -75,3 +75,13 @@ def plot_rate_curves(curves, path, *, per_second: bool = False) -> Path:
     fig.savefig(path, dpi=200)
     plt.close(fig)
     return path
+
+
+def _log_axis(ax) -> None:
+    """Logarithmic x axis with plain-number labels on the decades and a few readable minor labels."""
+    from matplotlib.ticker import LogLocator, NullFormatter, ScalarFormatter
+
+    ax.set_xscale("log")
+    ax.xaxis.set_major_locator(LogLocator(base=10, subs=(1.0, 2.0, 5.0)))
+    ax.xaxis.set_major_formatter(ScalarFormatter())
+    ax.xaxis.set_minor_formatter(NullFormatter())
