@@ -41,7 +41,7 @@ def run(args) -> int:
 
     out = Path(args.out)
     out.mkdir(parents=True, exist_ok=True)
-    n_sym = 3_000 if args.quick else 20_000
+    n_sym = 3_000 if args.quick else 10_000
     scenario = load("demo")
     (out / "scenario.toml").write_text(demo_path().read_text())
     record = {"scenario": scenario.name, "caution": SAFETY, "files": {}, "seconds": {}}
@@ -67,7 +67,7 @@ def run(args) -> int:
     t = _step("signalling schemes at equal budget")
     records = compare_schemes(scenario, response, n_symbols=n_sym // 2, n_runs=4, detector_symbols=n_sym // 2)
     print(format_table(scenario, records))
-    budgets = np.geomspace(4, 60, 4 if args.quick else 7)
+    budgets = np.geomspace(4, 60, 4 if args.quick else 5)
     curves = budget_sweep(scenario, response, budgets, applicable_schemes(scenario), n_symbols=n_sym // 4,
                           n_runs=4, csv_path=out / "curves.csv")
     plot_rate_curves(curves, out / "curves.png")
@@ -83,11 +83,15 @@ def run(args) -> int:
         t = _step("best symbol interval (bits per second)")
         best = optimise_design(scenario, ("symbol_interval",), "bits-per-second", starts=2 if args.quick else 3,
                                steps=60 if args.quick else 150, progress=True)
-        print(f"best symbol interval {best.best['symbol_interval'] * 1e3:.1f} ms: {best.value:.4g} bits/s "
-              f"(bounds {best.lower_bound:.4g} .. {best.upper_bound:.4g}); {best.message}")
-        dump_json({"best": best.best, "objective": best.objective, "value": best.value,
+        print(f"best symbol interval {best.best['symbol_interval'] * 1e3:.1f} ms: objective ({best.rate} rate) "
+              f"{best.value:.4g} bits/s; at that interval the trellis rate is {best.polished:.4g} +/- "
+              f"{best.polished_stderr:.2g} bits/s, bounds {best.lower_bound:.4g} .. {best.upper_bound:.4g}")
+        print(best.message)
+        dump_json({"best": best.best, "objective": best.objective, "rate": best.rate, "value": best.value,
+                   "polished": best.polished, "polished_stderr": best.polished_stderr,
                    "lower_bound": best.lower_bound, "upper_bound": best.upper_bound,
-                   "evaluations": best.evaluations, "history": best.history}, out / "optimise.json")
+                   "evaluations": best.evaluations, "history": best.history, "notes": list(best.notes)},
+                  out / "optimise.json")
         record["seconds"]["optimise"] = time.perf_counter() - t
 
     record["files"] = sorted(p.name for p in out.iterdir())
