@@ -122,3 +122,63 @@ def test_unreadable_file_exits_2(tmp_path):
     bad.write_text("name = [unclosed\n")
     proc = _run("check", str(bad), check=False)
     assert proc.returncode == 2 and "Traceback" not in proc.stderr
+
+
+PAIR = textwrap.dedent(
+    """
+    name = "cli test two by two"
+    [medium]
+    diffusion = "100 um^2/s"
+    [[emitter]]
+    name = "left"
+    position = [0, 0, 0]
+    [[emitter]]
+    name = "right"
+    position = [0, "30 um", 0]
+    [[receiver]]
+    name = "a"
+    centre = ["10 um", 0, 0]
+    radius = "4 um"
+    [[receiver]]
+    name = "b"
+    centre = ["10 um", "30 um", 0]
+    radius = "4 um"
+    [channel]
+    symbol_interval = "250 ms"
+    memory = 1
+    background = 0.2
+    response = "lone"
+    [signalling]
+    scheme = "spatial"
+    levels = 2
+    peak = 30
+    budget = 10
+    """
+)
+
+
+def test_compare_at_equal_budget_and_over_budgets(tmp_path):
+    path = tmp_path / "pair.toml"
+    path.write_text(PAIR)
+    out = tmp_path / "out"
+    data = json.loads(_run("compare", str(path), "--schemes", "amplitude,spatial", "--budgets", "4:20:3",
+                           "--symbols", "1500", "--runs", "3", "--json", "--out", str(out)).stdout)
+    names = [s["scheme"] for s in data["schemes"]]
+    assert names == ["amplitude", "spatial"]
+    for s in data["schemes"]:
+        for key in ("scheme", "budget", "isi_free_capacity", "information_rate", "stderr", "lower_bound",
+                    "upper_bound", "bits_per_second", "bits_per_molecule", "detectors"):
+            assert key in s
+        # the budget is met: mean molecules per symbol never exceed it
+        assert s["details"]["mean_molecules"] <= 10 + 1e-6
+        assert s["bits_per_second"] == pytest.approx(s["information_rate"] / 0.25)
+        ran = [d for d in s["detectors"] if "rate" in d]
+        assert ran, "at least one detector ran"
+        for d in ran:
+            # data processing: hard decisions cannot carry more than the soft channel's upper bound allows
+            assert d["rate"] <= s["upper_bound"] + 4 * s["stderr"] + 0.05
+            assert 0 <= d["symbol_error_rate"] <= 1
+    rows = (out / "curves.csv").read_text().strip().splitlines()
+    assert len(rows) == 1 + 2 * 3
+    assert (out / "curves.png").stat().st_size > 1000
+    assert (out / "compare.json").exists()
