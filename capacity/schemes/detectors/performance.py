@@ -137,6 +137,13 @@ def detector_performance(detector_name: str, hits, background, alphabet: Alphabe
     rate, rate_se, bias = confusion_information(confusion)
 
     closed, note = None, ""
+    if detector_name == "viterbi":
+        from capacity.schemes.detectors.viterbi import kept_lags
+
+        kept = kept_lags(problem)
+        if kept < problem.memory:
+            note = (f"; reduced-state sequence detection: the trellis keeps {kept} of {problem.memory} lags, the "
+                    "rest as mean interference")
     exact = CLOSED_FORMS.get(detector_name)
     if exact is not None and not np.any(problem.hits[:, :, 1:] > 0):
         tau, closed = exact(problem)

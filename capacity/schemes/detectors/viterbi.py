@@ -93,12 +93,36 @@ def _viterbi_core(y, start_metric, means, log_prior):
     return decisions
 
 
+def reduced_problem(problem: DetectionProblem, kept: int) -> DetectionProblem:
+    """The same link seen through a trellis that keeps only the first ``kept`` lags; the later lags' contribution
+    is replaced by its mean under the input law and added to ``offset`` (a mismatched, reduced-state receiver in
+    the sense of the auxiliary channels of Arnold et al., IEEE Trans. IT 52(8), 2006)."""
+    lm = lag_means(problem)  # (L+1, S, R)
+    late = np.einsum("s,lsr->r", problem.input_law, lm[kept + 1:])
+    return problem._replace(hits=problem.hits[:, :, : kept + 1], offset=problem.offset + late,
+                            preamble=problem.preamble[problem.memory - kept:])
+
+
+def kept_lags(problem: DetectionProblem) -> int:
+    """Largest number of lags whose trellis fits within MAX_STATES states and MAX_BRANCHES branches."""
+    n_s, kept = problem.size, 0
+    while kept < problem.memory and n_s ** (kept + 1) <= MAX_STATES and n_s ** (kept + 2) <= MAX_BRANCHES:
+        kept += 1
+    return kept
+
+
 def viterbi(counts: np.ndarray, problem: DetectionProblem) -> np.ndarray:
     """Sequence decisions: counts (n, R) -> symbol indices (n,) maximising the joint posterior (or likelihood).
 
     With no ISI (L = 0) the sequence detector is the symbol-by-symbol one (:func:`symbol_ml`), used directly.
+    When the full trellis is larger than MAX_STATES / MAX_BRANCHES, the detector runs on a reduced trellis that
+    keeps the first lags exactly and the rest as mean interference (:func:`reduced_problem`); it is then no longer
+    the exact sequence detector, and ``detector_performance`` says so in its message.
     """
     y = check_counts(counts, problem)
+    kept = kept_lags(problem)
+    if kept < problem.memory:
+        problem = reduced_problem(problem, kept)
     if problem.memory == 0:
         return symbol_ml(y, problem)
     means, start = trellis(problem)
