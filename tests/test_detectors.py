@@ -354,8 +354,8 @@ def test_reduced_state_viterbi_on_a_long_memory_channel():
     on a channel it models nearly exactly; here the dropped lags carry 0.2 % of the signal)."""
     from capacity.schemes.alphabet import Alphabet
     from capacity.schemes.detectors import detector_performance
-    from capacity.schemes.detectors.viterbi import MAX_STATES, kept_lags, reduced_problem
     from capacity.schemes.detectors.problem import make_problem
+    from capacity.schemes.detectors.viterbi import MAX_STATES, kept_lags, reduced_problem
 
     lags = np.array([0.30, 0.25, 0.15] + [1e-4] * 12)  # L = 14: 2^14 states, beyond the 4096 limit
     hits = lags[None, None, :]
