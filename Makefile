@@ -28,6 +28,8 @@ bench: $(STAMP)
 
 studies: $(STAMP)
 	$(BIN)/python studies/validate_responses.py
+	$(BIN)/python studies/best_symbol_interval.py
+	$(BIN)/python studies/schemes_vs_budget.py
 
 lint: $(STAMP)
 	$(BIN)/ruff check .
