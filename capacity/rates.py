@@ -43,6 +43,7 @@ class LinkRates(NamedTuple):
     interference: np.ndarray
     notes: tuple = ()
     binomial: dict | None = None
+    unit_cost: dict | None = None
 
     @property
     def lower_bound(self) -> float:
@@ -103,6 +104,7 @@ class LinkRates(NamedTuple):
             },
             "interference": np.asarray(self.interference).tolist(),
             "binomial_counting": self.binomial,
+            "capacity_per_molecule": self.unit_cost,
             "notes": list(self.notes),
         }
 
@@ -169,6 +171,7 @@ def link_rates(
         notes.append("a receiver's strongest signal peaks after the release slot: the ISI-free capacity "
                      "(release slot only) understates what the link carries; compare the rate with ISI instead")
 
+    unit_cost = _unit_cost(transition, cost, alphabet)
     binomial = None
     if scenario.channel.counting == "binomial":
         binomial = _binomial_comparison(transition, symbols, hits[:, :, 0], background, cost, budget, tol)
@@ -192,7 +195,21 @@ def link_rates(
                         seed=seed + 1)
     mean_molecules = float(law @ cost)
     return LinkRates(alphabet, isi_free, law, rate, bounds, mean_molecules, scenario.channel.symbol_interval,
-                     np.asarray(interference), tuple(notes), binomial)
+                     np.asarray(interference), tuple(notes), binomial, unit_cost)
+
+
+def _unit_cost(transition, cost, alphabet) -> dict:
+    """ISI-free capacity per unit cost (Verdú 1990), bits per molecule, or the reason it is not defined."""
+    from capacity.errors import InputError
+    from capacity.information.unit_cost import capacity_per_unit_cost
+
+    try:
+        value, best = capacity_per_unit_cost(transition, cost)
+    except InputError as exc:
+        return {"bits_per_molecule": None, "reason": str(exc)}
+    return {"bits_per_molecule": value, "symbol": alphabet.labels[best],
+            "meaning": "sup over symbols of D(W_x || W_silent) / molecules: the ISI-free limit of bits per "
+                       "molecule as the budget goes to zero (Verdu 1990)"}
 
 
 def _binomial_comparison(poisson, symbols, probs, background, cost, budget, tol) -> dict:

@@ -105,3 +105,15 @@ def test_binomial_counting_is_reported_beside_poisson():
     zp = np.exp(-n * h)
     assert rates.isi_free.capacity == pytest.approx(np.log2(1 + (1 - zp) * zp ** (zp / (1 - zp))), abs=1e-8)
     assert rates.binomial["max_tv"] > 0
+
+
+def test_capacity_per_molecule_matches_the_divergence_formula():
+    """Verdú (1990): C_cost = sup_x D(W_x || W_0) / b(x); for Poisson counts with background l0 and hit
+    probability p, D = (l0 + pN) ln(1 + pN/l0) - pN (references.md, capacity per unit cost)."""
+    s = _scenario(background=1.0, budget=5.0)
+    rates = link_rates(s, _response([[[0.1]]]), _ook(peak=20.0), n_symbols=2000, n_runs=4)
+    n, p, l0 = 20.0, 0.1, 1.0
+    expected = ((l0 + p * n) * np.log(1 + p * n / l0) - p * n) / n / np.log(2)
+    assert rates.unit_cost["bits_per_molecule"] == pytest.approx(expected, rel=1e-6)
+    # it bounds every budgeted bits-per-molecule figure from above (C(P)/P is non-increasing; Verdu 1990)
+    assert rates.isi_free.capacity / rates.isi_free.mean_cost <= expected * (1 + 1e-9)

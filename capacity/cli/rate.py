@@ -81,6 +81,10 @@ def format_rates(scenario, response, rates) -> str:
     row("  lower: decision feedback (dfe)", b["dfe"].rate, b["dfe"].stderr, m)
     row("  upper: matched filter (mf)", b["mf"].rate, b["mf"].stderr, m)
     lines.append("")
+    uc = rates.unit_cost or {}
+    if uc.get("bits_per_molecule") is not None:
+        lines.append(f"  capacity per unit cost (ISI-free, budget -> 0): {fmt(uc['bits_per_molecule'])} bits/molecule "
+                     f"(best symbol {uc['symbol']}; Verdu 1990)")
     lines.append(f"  ISI-free capacity: certified gap {cap.gap:.1e} bits; {cap.message}")
     lines.append(f"  rate with ISI: {rates.information_rate.method}; {rates.information_rate.message}")
     law = np.asarray(rates.iid_input)
