@@ -1,1 +1,2 @@
-"""channel"""
+"""Channel stage: memoryless transition laws (Poisson, exact multinomial for fixed release counts) with reported
+output truncation (``transition``)."""
