@@ -341,8 +341,12 @@ def test_detector_errors():
         detector_performance("threshold", hits, [1.0], a, np.full(4, 0.25))
     with pytest.raises(InputError, match="summing to 1"):
         detector_performance("symbol_ml", hits, [1.0], a, [0.5, 0.5, 0.5, 0.5])
+    # the full trellis is refused; viterbi() then falls back to a reduced-state trellis (tested below)
+    from capacity.schemes.detectors.problem import make_problem
+    from capacity.schemes.detectors.viterbi import trellis
+
     with pytest.raises(InputError, match="states"):
-        detector_performance("viterbi", np.full((1, 1, 8), 0.001), [1.0], a, np.full(4, 0.25))
+        trellis(make_problem(np.full((1, 1, 8), 0.001), np.array([1.0]), a, np.full(4, 0.25)))
     with pytest.raises(InputError, match="shape"):
         detector_performance("symbol_ml", np.full((2, 1, 2), 0.01), [1.0], a, np.full(4, 0.25))
 
