@@ -69,7 +69,7 @@ def evaluate_detectors(scenario, response, alphabet, rates, *, n_symbols: int, s
                                        np.asarray(rates.iid_input), n_symbols=n_symbols, seed=seed,
                                        interference=np.asarray(rates.interference))
         except InputError as exc:
-            out.append({"name": name, "skipped": str(exc)})
+            out.append({"name": name, "symbol_error_rate": None, "rate": None, "skipped": str(exc)})
             continue
         out.append({
             "name": name,

@@ -48,14 +48,14 @@ def main(argv=None) -> int:
         writer = csv.DictWriter(handle, fieldnames=CSV_FIELDS + ("best_detector", "detector_ser", "detector_rate"))
         writer.writeheader()
         for r in records:
-            dets = [d for d in r["detectors"] if "rate" in d]
+            dets = [d for d in r["detectors"] if d.get("rate") is not None]
             best = max(dets, key=lambda d: d["rate"]) if dets else {}
             writer.writerow({**{k: r[k] for k in CSV_FIELDS}, "best_detector": best.get("name"),
                              "detector_ser": best.get("symbol_error_rate"), "detector_rate": best.get("rate")})
     lines = ["| scheme | ISI-free capacity | i.i.d. rate with ISI | bounds | bits/s | bits/molecule | "
              "best detector (SER, hard rate) |", "|---|---|---|---|---|---|---|"]
     for r in records:
-        dets = [d for d in r["detectors"] if "rate" in d]
+        dets = [d for d in r["detectors"] if d.get("rate") is not None]
         best = max(dets, key=lambda d: d["rate"]) if dets else None
         det = f"{best['name']} ({best['symbol_error_rate']:.3g}, {best['rate']:.3f})" if best else "-"
         lines.append(f"| {r['scheme']} | {r['isi_free_capacity']:.3f} | {r['information_rate']:.3f} ± "

@@ -175,7 +175,8 @@ def test_compare_at_equal_budget_and_over_budgets(tmp_path):
         # the budget is met: mean molecules per symbol never exceed it
         assert s["details"]["mean_molecules"] <= 10 + 1e-6
         assert s["bits_per_second"] == pytest.approx(s["information_rate"] / 0.25)
-        ran = [d for d in s["detectors"] if "rate" in d]
+        assert all({"name", "symbol_error_rate", "rate"} <= set(d) for d in s["detectors"])
+        ran = [d for d in s["detectors"] if d["rate"] is not None]
         assert ran, "at least one detector ran"
         for d in ran:
             # data processing: hard decisions cannot carry more than the soft channel's upper bound allows
