@@ -150,3 +150,17 @@ def test_shadowed_validity_notes_warn_once():
         res = channel_response(sc)
     assert len([w for w in record if "validated range" in str(w.message)]) == 1
     assert all(note in res.notes for note in expected)
+
+
+def test_particle_step_count_matches_the_simulator_time_step():
+    """The step budget that channel_response checks is the one the simulator really uses (its own automatic dt,
+    shortened only so that a slot is a whole number of steps)."""
+    particles = pytest.importorskip("capacity.physics.particles")
+    from capacity.physics.response import layout_arrays, particle_step_count
+
+    sc = scenario(memory=3)
+    lay = layout_arrays(sc)
+    sim = particles._simulate(lay.emitters, lay.centres, lay.radii, lay.passive, lay.offsets, lay.diffusion,
+                              lay.degradation, lay.symbol_interval, 3, particles=4, seed=0)
+    used = 4 * lay.symbol_interval / sim.time_step
+    assert particle_step_count(lay, 3, None) <= used <= particle_step_count(lay, 3, None) * 1.01 + 1

@@ -166,21 +166,14 @@ def _shadowed(lay: Layout, memory: int, options: dict, lone):
 
 
 def particle_step_count(lay: Layout, memory: int, time_step: float | None) -> float:
-    """Base time steps ((L+1) Ts / dt) of the particle model; dt automatic as documented in ``simulate_hits``."""
+    """Base time steps ((L+1) Ts / dt) of the particle model, with the simulator's own automatic dt."""
+    from capacity.physics._particles_checks import auto_time_step, check_inputs
+
     dt = time_step
     if dt is None:
-        lengths = [np.inf]
-        ab = ~lay.passive
-        if ab.any():
-            c, r = lay.centres[ab], lay.radii[ab]
-            lengths.append(float(r.min()))
-            lengths.append(float((np.linalg.norm(lay.emitters[:, None] - c[None], axis=-1) - r[None]).min()))
-            if ab.sum() > 1:
-                sep = np.linalg.norm(c[:, None] - c[None], axis=-1) - r[:, None] - r[None]
-                np.fill_diagonal(sep, np.inf)
-                lengths.append(float(sep.min()))
-        ell = min(lengths)
-        dt = min(ell * ell / (100.0 * lay.diffusion), lay.symbol_interval / 200.0)
+        inputs = check_inputs(lay.emitters, lay.centres, lay.radii, lay.passive, lay.offsets, lay.diffusion,
+                              lay.degradation, lay.symbol_interval, memory, 1, 0, None)
+        dt = auto_time_step(inputs)
     return (memory + 1) * lay.symbol_interval / dt
 
 
