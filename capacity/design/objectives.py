@@ -49,6 +49,7 @@ from scipy import stats
 
 from capacity.design.params import DesignSpace, Layout, constrain, feasible, layout
 from capacity.errors import InputError
+from capacity.information.blahut_arimoto import mutual_information
 
 OBJECTIVES = ("bits-per-symbol", "bits-per-second", "bits-per-molecule")
 RATES = ("envelope", "isi-as-noise")
@@ -173,13 +174,6 @@ def log_poisson_grid(means, lo, sizes: tuple):
 _log_poisson_grid_jit = jax.jit(log_poisson_grid, static_argnums=2)
 
 
-def mutual_information_bits(law, log_w):
-    """I(X;Y) in bits for input law (S,) and log transition (S, Y): sum_x p_x sum_y W ln(W / sum_x' p_x' W)."""
-    log_q = logsumexp(log_w, axis=0, b=law[:, None])
-    w = jnp.exp(log_w)
-    return jnp.sum(law[:, None] * w * (log_w - log_q[None, :])) / LN2
-
-
 def objective_value(objective: str, bits: float, molecules: float, symbol_interval: float) -> float:
     """bits per symbol -> the named objective (bits/symbol, bits/s = bits/Ts, bits/molecule = bits/M)."""
     if objective == "bits-per-second":
@@ -234,7 +228,7 @@ def _surrogate(problem: Problem, sizes: tuple, arrays, fixed: Fixed):
     means, logw = channel_means(problem, hits, tail, sym, law)
     logp = log_poisson_grid(means, jnp.asarray(fixed.lo), sizes)  # (S, P, Y)
     log_w = logsumexp(logp + logw[None, :, None], axis=1)  # (S, Y)
-    bits = mutual_information_bits(law, log_w)
+    bits = mutual_information(law, log_w)  # truncated mass as one overflow output, as in blahut_arimoto
     molecules = law @ jnp.sum(sym, axis=1)
     budget = problem.budget
     lagr = bits if budget is None or problem.rate != "envelope" else bits - fixed.slope * (molecules - budget)
