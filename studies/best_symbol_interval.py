@@ -25,7 +25,7 @@ import capacity  # noqa: E402,F401
 from capacity.cli._common import load  # noqa: E402
 from capacity.physics.response import channel_response  # noqa: E402
 from capacity.rates import link_rates  # noqa: E402
-from capacity.report.plots import _log_axis  # noqa: E402
+from capacity.report.plots import _log_axis, save_figure  # noqa: E402
 from capacity.schemes.builders import build_alphabet  # noqa: E402
 
 FIELDS = ("symbol_interval", "memory", "isi_free_capacity", "information_rate", "stderr", "lower_bound",
@@ -100,9 +100,7 @@ def _plot(rows, path):
         ax.set_ylabel(label)
         ax.grid(alpha=0.3, which="both")
     axes[0].legend(fontsize=7)
-    fig.tight_layout()
-    fig.savefig(path, dpi=200)
-    plt.close(fig)
+    save_figure(fig, path)
 
 
 if __name__ == "__main__":

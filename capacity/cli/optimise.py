@@ -108,6 +108,8 @@ def _plots(result, out: Path) -> None:
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
+    from capacity.report.plots import save_figure
+
     unit = OBJECTIVE_UNITS[result.objective]
     fig, ax = plt.subplots(figsize=(6, 4))
     for k in sorted({h["start"] for h in result.history}):
@@ -117,9 +119,7 @@ def _plots(result, out: Path) -> None:
     ax.set_ylabel(f"{result.objective} [{unit}]")
     ax.set_title(f"{result.objective}, {result.rate} rate")
     ax.legend(fontsize=8)
-    fig.tight_layout()
-    fig.savefig(out / "history.png", dpi=120)
-    plt.close(fig)
+    save_figure(fig, out / "history.png", dpi=120)
     scalars = [n for n, v in result.best.items() if not isinstance(v, list)]
     if len(result.best) == 1 and scalars:
         name = scalars[0]
@@ -133,9 +133,7 @@ def _plots(result, out: Path) -> None:
         ax.set_xlabel(f"{name} [{UNITS[name]}]")
         ax.set_ylabel(f"{result.objective} [{unit}]")
         ax.legend(fontsize=8)
-        fig.tight_layout()
-        fig.savefig(out / f"objective_vs_{name}.png", dpi=120)
-        plt.close(fig)
+        save_figure(fig, out / f"objective_vs_{name}.png", dpi=120)
 
 
 def run(args) -> int:

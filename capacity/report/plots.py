@@ -41,12 +41,7 @@ def plot_response(response, emitter_names, receiver_names, path) -> Path:
         ax.grid(alpha=0.3)
         ax.legend(fontsize=7)
     fig.suptitle(f"channel response ({response.model} model)", fontsize=9)
-    fig.tight_layout()
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fig.savefig(path, dpi=150)
-    plt.close(fig)
-    return path
+    return save_figure(fig, path, dpi=150)
 
 
 def plot_rate_curves(curves, path, *, per_second: bool = False) -> Path:
@@ -69,10 +64,17 @@ def plot_rate_curves(curves, path, *, per_second: bool = False) -> Path:
     ax.set_ylabel("bits per second" if per_second else "bits per symbol")
     ax.grid(alpha=0.3, which="both")
     ax.legend(fontsize=7, title="line: i.i.d. rate with ISI\nband: bounds; dotted: ISI-free", title_fontsize=6)
+    return save_figure(fig, path, dpi=200)
+
+
+def save_figure(fig, path, dpi: int = 200) -> Path:
+    """Lay out, write (creating the folder) and close a figure; returns the path."""
+    import matplotlib.pyplot as plt
+
     fig.tight_layout()
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
-    fig.savefig(path, dpi=200)
+    fig.savefig(path, dpi=dpi)
     plt.close(fig)
     return path
 
