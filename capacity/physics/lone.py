@@ -98,11 +98,11 @@ def _partials(x, w, beta):
 
 @jax.custom_jvp
 def _phi_pair(x, w, q):
-    """(Phi, Phic) at (x, w); q = 2 x sqrt(w) is passed separately so that only q carries the sqrt(k) singularity
-    of the eventual capture exp(-q) (Phic's derivative); Phi itself is smooth in w."""
-    del q
+    """(Phi, Phic) at (x, w); q = 2 x sqrt(w) = d sqrt(k/D) is passed separately so that only q carries the
+    sqrt(k) singularity of the eventual capture exp(-q) (Phic's derivative), and so that Phic at t = 0 (w = 0,
+    q > 0) is the eventual capture exp(-q); Phi itself is smooth in w. Pass q = 0 when only Phi is used."""
     phi, phic, _ = _core(x, w)
-    return phi, phic
+    return phi, _complement_at_zero_w(phi, phic, w, q)
 
 
 @_phi_pair.defjvp
@@ -110,9 +110,20 @@ def _phi_pair_jvp(primals, tangents):
     x, w, q = primals
     xd, wd, qd = tangents
     phi, phic, beta = _core(x, w)
+    phic = _complement_at_zero_w(phi, phic, w, q)
     dx, dw = _partials(x, w, beta)
     dphi = dx * xd + dw * wd
     return (phi, phic), (dphi, -jnp.exp(-q) * qd - dphi)
+
+
+def _complement_at_zero_w(phi, phic, w, q):
+    """Phic where w = k t = 0 although q = d sqrt(k/D) > 0, i.e. at t = 0 with degradation: exp(-q) - Phi.
+
+    ``_core`` only sees (x, w) and returns erf(x) for w = 0, right when k = 0 but not at t = 0 with k > 0, where
+    nothing has arrived yet and the part still to come is the whole eventual capture exp(-q) (minus Phi = erfc(x),
+    which is exactly 0 there). Away from t = 0, w = 0 means k = 0 and q = 0, and erf(x) is kept.
+    """
+    return jnp.where((w == 0.0) & (q > 0.0), jnp.exp(-q) - phi, phic)
 
 
 def _as_f64(*values):
