@@ -351,3 +351,68 @@ def test_jit_vmap_and_no_recompile():
     lone.lone_hits(EM, CE, RA, PA, OFF, D, 0.1, 0.1, memory=SHORT)
     lone.lone_hits(EM * 0.5, CE, RA, PA, OFF, 3 * D, 0.2, 0.3, memory=SHORT)
     assert lone.lone_hits._cache_size() <= size + 1
+
+
+# ---------------------------------------------------------------------------------------------- first slots
+def _mp_absorbing_cdf(t, k, r, d, diff):
+    """F_k(t) at 300 digits (Heren, Yilmaz, Chae, Tugcu, IEEE TMBMC 1(2), 2015; Yilmaz et al. 2014 for k = 0);
+    enough digits that slot differences down to 1e-250 keep full relative accuracy."""
+    import mpmath
+
+    mpmath.mp.dps = 300
+    t, k, r, d, diff = (mpmath.mpf(float(v)) for v in (t, k, r, d, diff))
+    if t == 0:
+        return mpmath.mpf(0)
+    x, s, q = d / mpmath.sqrt(4 * diff * t), mpmath.sqrt(k * t), d * mpmath.sqrt(k / diff)
+    return r / (r + d) * (mpmath.exp(-q) * mpmath.erfc(x - s) + mpmath.exp(q) * mpmath.erfc(x + s)) / 2
+
+
+@pytest.mark.parametrize("k", [0.0, 0.8, 10.0])
+@pytest.mark.parametrize("ts", [0.05, 0.5, 5.0, 50.0])
+def test_every_slot_against_the_closed_form_including_first_slots_holding_most_of_the_mass(k, ts):
+    # one emitter at the origin, an absorbing sphere r = 5 um centred 10 um away, D = 79.4 um^2/s: at Ts >= 0.5 s
+    # the first slot holds most of what is eventually captured, the case where slot 0 was once wrong for k > 0.
+    # Reference: F_k((l+1)Ts) - F_k(l Ts) at 300 digits (Heren et al. 2015), tail = limit - F_k((L+1)Ts).
+    import mpmath
+
+    mem = 4
+    em, ce, ra = np.zeros((1, 3)), np.array([[10e-6, 0.0, 0.0]]), np.array([5e-6])
+    hits, tail = (np.asarray(v) for v in lone.lone_hits(em, ce, ra, np.array([False]), np.array([0.0]), D, k, ts,
+                                                        memory=mem))
+    d = 5e-6
+    f = [_mp_absorbing_cdf(l * ts, k, 5e-6, d, D) for l in range(mem + 2)]
+    limit = mpmath.mpf(5e-6) / (mpmath.mpf(5e-6) + mpmath.mpf(d)) * mpmath.exp(-mpmath.mpf(d)
+                                                                            * mpmath.sqrt(mpmath.mpf(k) / D))
+    expected = np.array([float(f[l + 1] - f[l]) for l in range(mem + 1)])
+    np.testing.assert_allclose(hits[0, 0], expected, rtol=1e-9)
+    assert tail[0, 0] == pytest.approx(float(limit - f[-1]), rel=1e-9)
+    assert hits[0, 0].sum() + tail[0, 0] == pytest.approx(float(limit), rel=1e-12)
+    # the survival at t = 0 is the whole eventual capture (nothing has arrived yet)
+    assert float(lone.absorbing_survival(0.0, 5e-6, d, D, k)) == pytest.approx(float(limit), rel=1e-14)
+
+
+@pytest.mark.parametrize("k", [0.0, 3.0])
+@pytest.mark.parametrize("rho_um", [0.0, 3.0, 12.0])
+def test_passive_first_samples_at_and_after_release(k, rho_um):
+    # passive sphere a = 5 um sampled at l Ts (offset 0: the first sample is at the release instant, where the
+    # count is 1 inside the sphere and 0 outside) and at l Ts + 1 ms; reference: the erfc form at 40 digits
+    # (reference sheet, passive sphere; setting of Noel, Cheung, Schober 2013).
+    ts, mem = 0.2, 3
+    em, ce, ra = np.zeros((1, 3)), np.array([[rho_um * 1e-6, 0.0, 0.0]]), np.array([5e-6])
+    for off in (0.0, 1e-3):
+        hits, _ = lone.lone_hits(em, ce, ra, np.array([True]), np.array([off]), D, k, ts, memory=mem)
+        hits = np.asarray(hits)[0, 0]
+        for l in range(mem + 1):
+            t = l * ts + off
+            if t == 0.0:
+                assert hits[l] == (1.0 if rho_um < 5.0 else 0.0)
+            elif rho_um == 0.0:  # centre: P = erf(a/s) - 2 a/(s sqrt(pi)) exp(-a^2/s^2), the rho -> 0 limit
+                import mpmath
+
+                mpmath.mp.dps = 40
+                s, a = mpmath.sqrt(4 * mpmath.mpf(D) * t), mpmath.mpf(5e-6)
+                ref = (mpmath.erf(a / s) - 2 * a / (s * mpmath.sqrt(mpmath.pi)) * mpmath.exp(-a**2 / s**2)) \
+                    * mpmath.exp(-k * t)
+                assert hits[l] == pytest.approx(float(ref), rel=1e-9)
+            else:
+                assert hits[l] == pytest.approx(mp_passive(t, 5e-6, rho_um * 1e-6, k), rel=1e-9)
