@@ -5,6 +5,7 @@ import pytest
 from scipy import special
 
 from capacity.errors import InputError
+from capacity.physics import particles, shadowed
 from capacity.physics.response import MEMORY_CAP, channel_response
 from capacity.scenario.types import Channel, Emitter, Medium, Receiver, Scenario
 
@@ -95,9 +96,6 @@ def test_bad_requests_raise_input_errors():
 
 
 def test_shadowed_dispatch_keeps_passive_lone_and_reorders():
-    shadowed = pytest.importorskip("capacity.physics.shadowed")
-    if not hasattr(shadowed, "validity_notes"):
-        pytest.skip("shadowed.validity_notes not written yet")
     sc = scenario(memory=5, response="shadowed")
     res = channel_response(sc)
     lone = channel_response(sc, "lone")
@@ -113,7 +111,6 @@ def test_shadowed_dispatch_keeps_passive_lone_and_reorders():
 
 
 def test_particles_step_limit_is_an_input_error():
-    pytest.importorskip("capacity.physics.particles")
     sc = scenario(memory=3)
     # (L+1) Ts / time_step = 4 * 0.3 / 1e-7 = 1.2e7 steps > 1e6
     with pytest.raises(InputError, match="channel.memory") as err:
@@ -123,7 +120,6 @@ def test_particles_step_limit_is_an_input_error():
 
 @pytest.mark.slow
 def test_particles_dispatch_and_overrides():
-    pytest.importorskip("capacity.physics.particles")
     sc = scenario(memory=3, particles=50, seed=1)
     a = channel_response(sc, "particles", particles=1000, seed=3)
     b = channel_response(sc, "particles", particles=1000, seed=4)
@@ -137,9 +133,6 @@ def test_particles_dispatch_and_overrides():
 
 
 def test_shadowed_validity_notes_warn_once():
-    shadowed = pytest.importorskip("capacity.physics.shadowed")
-    if not hasattr(shadowed, "validity_notes"):
-        pytest.skip("shadowed.validity_notes not written yet")
     sc = scenario(memory=5, response="shadowed")
     small = Receiver("far", (-14e-6, -6e-6, 0.0), 1.5e-6)  # radius ratio 5 / 1.5 = 3.3: outside the valid range
     sc = sc.replace(receivers=(sc.receivers[0], small, sc.receivers[2]))
@@ -155,7 +148,6 @@ def test_shadowed_validity_notes_warn_once():
 def test_particle_step_count_matches_the_simulator_time_step():
     """The step budget that channel_response checks is the one the simulator really uses (its own automatic dt,
     shortened only so that a slot is a whole number of steps)."""
-    particles = pytest.importorskip("capacity.physics.particles")
     from capacity.physics.response import layout_arrays, particle_step_count
 
     sc = scenario(memory=3)

@@ -10,6 +10,7 @@ from scipy.special import erfc, erfcx
 
 import capacity  # noqa: F401  (float64)
 from capacity.errors import InputError
+from capacity.physics import particles
 from capacity.physics.shadowed import _shadowed_core, shadowed_hits, validity_notes
 from tests.reference_images import image_split
 
@@ -204,7 +205,6 @@ def test_validity_notes():
 # --- against the particle simulator ------------------------------------------------------------------------------
 
 def test_against_particle_simulator_small():
-    particles = pytest.importorskip("capacity.physics.particles")
     e = np.array([[0.0, 0, 0]]) * UM
     c = np.array([[14.0, 0, 0], [27.0, 2.0, 0]]) * UM  # one partly behind the other
     r = np.array([5.0, 5.0]) * UM
@@ -221,7 +221,6 @@ def test_against_particle_simulator_small():
 
 @pytest.mark.slow
 def test_validation_study_quick_mode(tmp_path):
-    pytest.importorskip("capacity.physics.particles")
     import json
     import os
     import subprocess
