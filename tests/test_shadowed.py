@@ -219,6 +219,44 @@ def test_against_particle_simulator_small():
     assert np.all(np.abs(hits.sum(-1) - sim.sum(-1)) <= 0.10 * sim.sum(-1) + 4 * total_se)
 
 
+def _slot_check(model, sim, se, rel_tol):
+    """Slots carrying >= 10 % of a receiver's simulated total: |model - sim| <= rel_tol * sim + 4 SE per slot.
+
+    Returns a boolean array (R, L+1) of slots that pass (True also for the slots that are not checked)."""
+    checked = sim >= 0.10 * sim.sum(-1, keepdims=True)
+    return ~checked | (np.abs(model - sim) <= rel_tol * sim + 4 * se), checked
+
+
+def test_hidden_receiver_time_resolved_against_particles():
+    # Time-resolved check on the layout above, where the far sphere sits partly behind the near one. The
+    # particle simulator (independent Monte Carlo, exact Gaussian increments and radial bridge) with 4e5
+    # molecules gives the hidden sphere's main slots to a relative SE of 4-5 %; shadowing cuts those slots by a
+    # factor 3-5 relative to the lone closed form (Yilmaz et al. 2014), far beyond 10 % + 4 SE. Tolerance:
+    # 10 % relative, the target accuracy the model states for hidden receivers (its docstring, measured 8.3 % on
+    # the total in results/validation/; a 1e6-molecule run on this layout gave -7 +- 2 % on the hidden sphere's
+    # late slots), plus 4 SE (common practice for Monte Carlo comparisons).
+    e = np.array([[0.0, 0, 0]]) * UM
+    c = np.array([[14.0, 0, 0], [27.0, 2.0, 0]]) * UM
+    r = np.array([5.0, 5.0]) * UM
+    ts, memory, n, diff = 0.2, 4, 400_000, 1e-10
+    hits, _ = shadowed_hits(e, c, r, diff, 0.0, ts, memory)
+    sim, _, _ = particles.simulate_hits(e, c, r, np.zeros(2, dtype=bool), np.full(2, ts), diff, 0.0, ts, memory,
+                                        particles=n, seed=13)
+    hits, sim = np.asarray(hits)[0], np.asarray(sim)[0]
+    se = np.sqrt(sim * (1 - sim) / n)  # Bernoulli SE per slot, computed here (references.md, "Standard errors")
+    ok, checked = _slot_check(hits, sim, se, 0.10)
+    assert checked[1].sum() >= 3  # the hidden sphere's main slots are really checked
+    assert np.all(ok), (hits, sim)
+    # the check is sharp enough to reject the model without shadowing: the lone closed form (scipy, Yilmaz et
+    # al. 2014) fails it on the hidden sphere's slots
+    gaps = np.linalg.norm(e[0] - c, axis=1) - r
+    edges = ts * np.arange(memory + 2, dtype=float)
+    lone = np.diff(np.stack([np.concatenate([[0.0], _scipy_lone_cdf(edges[1:], r[j], gaps[j], diff, 0.0)])
+                             for j in range(2)]), axis=-1)
+    lone_ok, _ = _slot_check(lone, sim, se, 0.10)
+    assert not np.any(lone_ok[1][checked[1]])
+
+
 @pytest.mark.slow
 def test_validation_study_quick_mode(tmp_path):
     import json
