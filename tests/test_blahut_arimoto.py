@@ -228,3 +228,53 @@ def test_slope_argument_gives_a_point_of_the_curve():
     pt = blahut_arimoto(w, cost=[0.0, 1.0], slope=ref.slope)
     assert pt.mean_cost == pytest.approx(0.2, abs=1e-6)
     assert pt.capacity == pytest.approx(ref.capacity, abs=1e-8)
+
+
+def _poisson_rows(means, y_top=60):
+    """W(y|x) of Poisson counts on 0..y_top-1 from scipy.stats (row mass lost < 1e-30 for the means used)."""
+    from scipy.stats import poisson
+
+    return poisson.pmf(np.arange(y_top)[None, :], np.asarray(means)[:, None])
+
+
+def _slsqp_capacity(w, cost, budget):
+    """max_p I(p; W) over the simplex with sum_x p_x b_x <= budget by scipy.optimize SLSQP (several starts), the
+    mutual information written out in numpy (``info_bits`` above). Returns (value in bits, law)."""
+    n = w.shape[0]
+    cons = [{"type": "eq", "fun": lambda p: p.sum() - 1.0, "jac": lambda p: np.ones(n)},
+            {"type": "ineq", "fun": lambda p: budget - p @ cost, "jac": lambda p: -cost}]
+    best = None
+    cheap = np.eye(n)[np.argmin(cost)]
+    for start in (np.full(n, 1.0 / n), np.eye(n)[-1], np.linspace(1.0, 2.0, n)[::-1]):
+        x0 = start / start.sum()
+        if x0 @ cost > budget:  # a feasible start: mix with the cheapest symbol
+            x0 = cheap + (x0 - cheap) * (budget - cheap @ cost) / (x0 @ cost - cheap @ cost)
+        res = optimize.minimize(lambda p: -info_bits(np.clip(p, 0, None), w), x0, method="SLSQP",
+                                bounds=[(0.0, 1.0)] * n, constraints=cons,
+                                options={"ftol": 1e-14, "maxiter": 1000})
+        if best is None or res.fun < best.fun:
+            best = res
+    return -best.fun, np.clip(best.x, 0, None)
+
+
+def test_capacity_cost_curve_points_match_scipy_slsqp_single_budget_optimisation():
+    # outside reference: each point of C(P) is a separate concave maximisation of I(p; W) over the simplex with a
+    # mean-cost constraint (Blahut 1972, the capacity-cost function), solved here by scipy.optimize SLSQP on the
+    # test's own numpy mutual information with the Poisson pmf of scipy.stats. The curve must match SLSQP to
+    # 1e-7 bits (SLSQP's own accuracy on this smooth problem) and bracket it by its certificate.
+    levels = np.array([0.0, 3.0, 6.0, 12.0])
+    means = 0.4 + 0.35 * levels
+    w = _poisson_rows(means)
+    t = poisson_transition(means[:, None], tol=1e-14)
+    budgets = np.array([0.3, 1.0, 2.5, 4.0])
+    curve = capacity_cost_curve(t, levels, budgets, tol=1e-10)
+    for k, budget in enumerate(budgets):
+        value, law = _slsqp_capacity(w, levels, budget)
+        assert law @ levels <= budget + 1e-9
+        res = curve[k]
+        assert res.converged, res.message
+        assert res.capacity == pytest.approx(value, abs=1e-7)
+        assert value <= res.capacity + res.gap + 1e-9  # the certificate brackets the outside optimum
+        assert res.mean_cost == pytest.approx(budget, rel=1e-9)  # binding budgets: unconstrained cost is higher
+        # the reported law achieves the reported value (numpy mutual information, independent of the package)
+        assert info_bits(np.asarray(res.input_distribution), w) == pytest.approx(res.capacity, abs=1e-9)

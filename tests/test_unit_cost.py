@@ -8,7 +8,7 @@ from scipy import stats
 
 from capacity.channel.transition import poisson_transition
 from capacity.errors import InputError
-from capacity.information.blahut_arimoto import blahut_arimoto
+from capacity.information.blahut_arimoto import blahut_arimoto, capacity_cost_curve
 from capacity.information.unit_cost import capacity_per_unit_cost, poisson_unit_cost
 
 
@@ -84,3 +84,31 @@ def test_binary_channel_unit_cost_by_hand():
     want = (0.3 * math.log2(0.3 / 0.9) + 0.7 * math.log2(0.7 / 0.1)) / 2.0
     value, best = capacity_per_unit_cost(w, [0.0, 2.0])
     assert best == 1 and value == pytest.approx(want, rel=1e-14)
+
+
+def test_capacity_cost_curve_slope_at_zero_is_the_capacity_per_unit_cost():
+    # Verdú (1990), Thm 2: with a free input, C'(0+) = lim_{P->0} C(P)/P = sup_x D(W_x || W_0)/b(x). The sup is
+    # computed here from the closed-form Poisson divergence (d_formula: D/N increases with N, so it is at the
+    # peak). C(P) is concave with C(0) = 0, so the curve's slope s(P) = C'(P) obeys s(P) <= C(P)/P <= C'(0)
+    # (elementary concavity); as P -> 0 the ratio's error is about half the slope's (C(P)/P = C'(0) + C''(0)P/2,
+    # s(P) = C'(0) + C''(0)P), so the slope gets twice the ratio's tolerance. chi2(W_peak || W_0) = e^2 - 1 keeps
+    # the approach fast enough (see the test above).
+    p, lam0 = 0.1, 2.0
+    levels = np.array([0.0, 5.0, 10.0, 20.0])
+    t = poisson_transition((lam0 + p * levels)[:, None], tol=1e-14)
+    target = d_formula(p, lam0, levels[-1])
+    assert max(d_formula(p, lam0, n) for n in levels[1:]) == target
+    budgets = np.array([0.2, 0.02, 0.002])
+    curve = capacity_cost_curve(t, levels, budgets, tol=1e-13)
+    ratios = np.array([r.capacity / b for r, b in zip(curve, budgets, strict=True)])
+    slopes = np.array([r.slope for r in curve])
+    assert all(r.converged for r in curve), [r.message for r in curve]
+    assert np.all(slopes <= ratios * (1 + 1e-9)) and np.all(ratios <= target * (1 + 1e-12))
+    assert np.all(np.diff(ratios) > 0) and np.all(np.diff(slopes) > 0)  # both rise towards C'(0) as P falls
+    assert ratios[-1] == pytest.approx(target, rel=1e-3)
+    assert slopes[-1] == pytest.approx(target, rel=2e-3)
+    # first order in P: the errors fall tenfold per decade, the slope's twice the ratio's
+    err_ratio, err_slope = target - ratios, target - slopes
+    assert err_ratio[-1] / err_ratio[-2] == pytest.approx(0.1, rel=0.05)
+    assert err_slope[-1] / err_ratio[-1] == pytest.approx(2.0, rel=0.05)
+    assert capacity_per_unit_cost(t, levels) == (pytest.approx(target, rel=1e-12), 3)
