@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import re
 import subprocess
 import sys
 import textwrap
@@ -53,15 +54,26 @@ def small(tmp_path):
 
 def test_help_lists_every_subcommand():
     out = _run("--help").stdout
-    for name in ("check", "response", "rate", "compare", "demo"):
-        assert name in out
+    # argparse lists each sub-command as an indented line "    name   help text": compare whole names, not
+    # substrings of the help text
+    listed = set(re.findall(r"^ {4}([a-z]+)\s", out, flags=re.MULTILINE))
+    assert {"check", "response", "rate", "compare", "demo"} <= listed, listed
 
 
 def test_check_json_reports_lone_capture(small):
     data = json.loads(_run("check", str(small), "--json").stdout)
-    text = json.dumps(data)
-    # lone eventual capture r/(r+d) = 5/10 (Yilmaz et al. 2014, closed form) appears in the summary
-    assert "0.5" in text
+    (pair,) = data["pairs"]
+    assert (pair["emitter"], pair["receiver"], pair["kind"]) == ("tx", "rx", "absorbing")
+    r, centre, D, ts = 5e-6, 10e-6, 80e-12, 0.3  # the SMALL scenario, SI
+    d = centre - r
+    assert pair["centre_distance"] == pytest.approx(centre, rel=1e-12)
+    assert pair["gap"] == pytest.approx(d, rel=1e-12)
+    # lone eventual capture r/(r+d) = 5/10 (Yilmaz et al. 2014, closed form; references.md long-time limit)
+    assert pair["lone_capture"] == pytest.approx(r / (r + d), rel=1e-12)
+    # peak of the hitting rate at d^2/(6D) (references.md, classical first-passage result, Redner 2001)
+    assert pair["peak_time"] == pytest.approx(d**2 / (6 * D), rel=1e-12)
+    assert pair["peak_time_slots"] == pytest.approx(d**2 / (6 * D) / ts, rel=1e-12)
+    assert data["diffusion"] == pytest.approx(D, rel=1e-12) and data["symbol_interval"] == pytest.approx(ts)
 
 
 def test_response_json_keys_and_closed_form(small, tmp_path):
@@ -100,31 +112,45 @@ def test_rate_json_keys_and_ordering(small):
     assert m["rate"] >= data["information_rate"] - 4 * (m["stderr"] + data["stderr"])
 
 
+# InputError messages read "<field> = <value>: <problem>. Fix: <fix>" (capacity/errors.py, DEVELOPERS.md), and
+# the command line prints them as one line "capacity check: error: <message>"; the checks parse that line and
+# compare the field path as a whole, with the word the message must also name (the right key, the receiver).
+ERROR_LINE = re.compile(r"^capacity check: error: (?P<field>.+?) = (?P<value>.+?): (?P<rest>.+)$")
+
+
 @pytest.mark.parametrize(
-    "replace, field",
+    "replace, field, mention",
     [
-        (('diffusion = "80 um^2/s"', "diffusion = -1"), "diffusion"),
-        (('radius = "5 um"', 'radious = "5 um"'), "radius"),
-        (('centre = ["10 um", 0, 0]', 'centre = ["3 um", 0, 0]'), "receiver"),
-        (('symbol_interval = "300 ms"', 'symbol_interval = "300 um"'), "symbol_interval"),
+        (('diffusion = "80 um^2/s"', "diffusion = -1"), "medium.diffusion", "positive"),
+        (('radius = "5 um"', 'radious = "5 um"'), "receiver[0].radious", '"radius"'),
+        (('centre = ["10 um", 0, 0]', 'centre = ["3 um", 0, 0]'), "emitter[0].position", "receiver[0]"),
+        (('symbol_interval = "300 ms"', 'symbol_interval = "300 um"'), "channel.symbol_interval", "time"),
     ],
 )
-def test_bad_input_exits_2_without_traceback(tmp_path, replace, field):
+def test_bad_input_exits_2_without_traceback(tmp_path, replace, field, mention):
     path = tmp_path / "bad.toml"
     path.write_text(SMALL.replace(*replace))
     proc = _run("check", str(path), check=False)
     assert proc.returncode == 2
     assert "Traceback" not in proc.stderr
-    assert field in proc.stderr
+    lines = proc.stderr.strip().splitlines()
+    assert len(lines) == 1, proc.stderr
+    match = ERROR_LINE.match(lines[0])
+    assert match, lines[0]
+    assert match["field"] == field
+    assert mention in match["rest"] and "Fix:" in match["rest"]
 
 
 def test_unreadable_file_exits_2(tmp_path):
-    proc = _run("check", str(tmp_path / "missing.toml"), check=False)
-    assert proc.returncode == 2 and "Traceback" not in proc.stderr
     bad = tmp_path / "notoml.toml"
     bad.write_text("name = [unclosed\n")
-    proc = _run("check", str(bad), check=False)
-    assert proc.returncode == 2 and "Traceback" not in proc.stderr
+    for path, problem in ((tmp_path / "missing.toml", "cannot be read"), (bad, "is not valid TOML")):
+        proc = _run("check", str(path), check=False)
+        assert proc.returncode == 2 and "Traceback" not in proc.stderr
+        match = ERROR_LINE.match(proc.stderr.strip())
+        assert match, proc.stderr
+        assert match["field"] == "scenario file" and match["value"] == repr(str(path))
+        assert match["rest"].startswith(problem)
 
 
 PAIR = textwrap.dedent(
