@@ -377,3 +377,79 @@ def test_reduced_state_viterbi_on_a_long_memory_channel():
     assert "reduced-state" in vit.message
     se = np.sqrt(sml.symbol_error_rate * (1 - sml.symbol_error_rate) / 3000)
     assert vit.symbol_error_rate < sml.symbol_error_rate - 4 * se
+
+
+# -- bit error rate with multi-bit Gray labels against a brute-force count ---------------------------------------
+def _reflected_gray(bits):
+    """Binary reflected Gray code words as 0/1 rows, built by reflection (Gray, US patent 2,632,058, 1953):
+    G(1) = 0, 1; G(n) = 0·G(n−1) followed by 1·reverse(G(n−1))."""
+    words = [[0], [1]]
+    for _ in range(bits - 1):
+        words = [[0] + w for w in words] + [[1] + w for w in reversed(words)]
+    return np.array(words, dtype=np.int64)
+
+
+def _expected_labels(scheme, levels, emitters):
+    """The documented labels, built independently: Gray along the levels (amplitude), per-emitter Gray words
+    concatenated in itertools.product order, emitter 0 first (multiplex with a power-of-two level count)."""
+    g = _reflected_gray(int(math.log2(levels)))
+    if scheme == "amplitude":
+        return g
+    return np.array([np.concatenate([g[d] for d in digits])
+                     for digits in itertools.product(range(levels), repeat=emitters)])
+
+
+@pytest.mark.parametrize("scheme, levels, emitters, detector, lags", [
+    ("amplitude", 4, 1, "symbol_ml", 1),
+    ("amplitude", 8, 1, "symbol_ml", 1),
+    ("amplitude", 8, 1, "viterbi", 2),
+    ("multiplex", 4, 2, "symbol_ml", 1),
+])
+def test_bit_error_rate_matches_brute_force_hamming_count(scheme, levels, emitters, detector, lags):
+    # brute force (definition of the bit error rate): every (sent, decided) pair of the run, from its confusion
+    # matrix, weighted by the Hamming distance between the two independently built Gray words, over n·B bits
+    a = build_alphabet(Signalling(scheme=scheme, levels=levels, peak=1500.0), emitters)
+    labels = _expected_labels(scheme, levels, emitters)
+    np.testing.assert_array_equal(a.bits, labels)
+    rng = np.random.default_rng(31)
+    hits = rng.uniform(0.004, 0.01, size=(emitters, emitters, lags)) * np.array([1.0, 0.4])[:lags]
+    law = rng.dirichlet(np.full(a.size, 4.0))
+    n = 4000
+    r = detector_performance(detector, hits, np.full(emitters, 0.8), a, law, n_symbols=n, seed=12)
+    ham = (labels[:, None, :] != labels[None, :, :]).sum(axis=2)  # (S, S) Hamming distances
+    brute = float((r.confusion * ham).sum()) / (n * labels.shape[1])
+    assert r.bit_error_rate == pytest.approx(brute, rel=1e-14, abs=0.0)
+    assert r.ber_interval[0] <= r.bit_error_rate <= r.ber_interval[1]
+    # discriminating: the run has errors, some flipping several bits, and plain binary labels would count a
+    # different number of bit errors
+    assert r.symbol_error_rate > 0.02 and np.any((r.confusion > 0) & (ham > 1))
+    nat = np.array([[int(c) for c in np.binary_repr(k, labels.shape[1])] for k in range(a.size)])
+    nat_ham = (nat[:, None, :] != nat[None, :, :]).sum(axis=2)
+    assert float((r.confusion * nat_ham).sum()) != float((r.confusion * ham).sum())
+
+
+def test_gray_bit_error_rate_matches_exact_symbol_map_expectation():
+    # exact expected BER of the symbol MAP rule, one receiver, no ISI, 8 levels: Σ_s π_s Σ_y P(y|s) d_H(g(s),
+    # g(ŝ(y))) / B with ŝ(y) = argmax_s π_s P(y|s) (scipy.stats.poisson.pmf, truncation mass < 1e-12) and Gray
+    # words built by reflection; the simulated BER must lie within 4 conservative standard errors (symbols as
+    # trials, sqrt(BER(1-BER)/n)), and plain binary labels would give a clearly different value
+    a = build_alphabet(Signalling(scheme="amplitude", levels=8, peak=2000.0), 1)
+    g = _reflected_gray(3)
+    law = np.full(8, 1 / 8)
+    lams = 1.0 + 0.01 * a.symbols[:, 0]
+    y = np.arange(120)
+    w = np.array([poisson.pmf(y, lam) for lam in lams])  # (S, Y)
+    assert np.all(1.0 - w.sum(1) < 1e-12)
+    decide = np.argmax(law[:, None] * w, axis=0)
+
+    def expected(labels):
+        ham = (labels[:, None, :] != labels[None, :, :]).sum(axis=2)
+        return float(sum(law[s] * (w[s] * ham[s, decide]).sum() for s in range(8))) / labels.shape[1]
+
+    exact = expected(g)
+    natural = expected(np.array([[int(c) for c in np.binary_repr(k, 3)] for k in range(8)]))
+    n = 20_000
+    se = math.sqrt(exact * (1 - exact) / n)
+    assert natural - exact > 10 * se  # Gray labels halve the damage of neighbour slips here
+    r = detector_performance("symbol_ml", _memoryless_hits(0.01), [1.0], a, law, n_symbols=n, seed=23)
+    assert abs(r.bit_error_rate - exact) < 4 * se
