@@ -11,6 +11,7 @@ import itertools
 import numpy as np
 import pytest
 from scipy.special import logsumexp
+from scipy.stats import f as f_dist
 from scipy.stats import poisson
 
 import capacity  # noqa: F401
@@ -84,6 +85,28 @@ def test_monte_carlo_bounds_agree_with_exact_and_keep_order():
     r = information_rate(hits, bg, sym, law, n_symbols=4000, n_runs=8, seed=2)
     assert ex["dfe"].rate <= r.rate + 3 * r.stderr
     assert r.rate <= mc["mf"].rate + 3 * np.hypot(r.stderr, mc["mf"].stderr)
+
+
+def test_monte_carlo_stderr_matches_spread_over_independent_seeds():
+    # The Monte Carlo bounds report SE = sample std / sqrt(n) of their own samples. Check each against the
+    # spread of k = 24 independent estimates (seeds chosen in advance): with a correct SE and near-normal
+    # estimates (central limit theorem, n = 5000), V / mean(SE^2) ~ F(k-1, k(n-1)) (V: sample variance of the
+    # k estimates) -- Fisher's variance-ratio test, common practice. Two-sided 0.1 % quantiles of F(23, ~1.2e5),
+    # [0.30, 2.26] (0.3 % family-wise over the three bounds, Bonferroni), accept an SE at most ~1.5x too small or
+    # ~1.8x too large (an SE scaled by 0.3 or 3 fails).
+    hits = np.array([[[0.5, 0.25, 0.1], [0.1, 0.1, 0.05]], [[0.05, 0.08, 0.04], [0.45, 0.2, 0.1]]]) * 4
+    sym = np.array([[0.0, 0.0], [1.0, 0.0], [0.0, 1.0]])
+    law = np.array([0.4, 0.3, 0.3])
+    bg = np.array([0.1, 0.2])
+    k, n = 24, 5000
+    results = [isi_bounds(hits, bg, sym, law, exact_limit=0, n_samples=n, seed=100 + i) for i in range(k)]
+    lo, hi = f_dist.ppf([0.0005, 0.9995], k - 1, k * (n - 1))
+    for key in ("sbs", "dfe", "mf"):
+        assert all(r[key].method == "Monte Carlo" for r in results)
+        est = np.array([r[key].rate for r in results])
+        se = np.array([r[key].stderr for r in results])
+        ratio = est.var(ddof=1) / np.mean(se**2)
+        assert lo < ratio < hi, (key, ratio, lo, hi)
 
 
 def test_auxiliary_sbs_is_a_lower_bound():

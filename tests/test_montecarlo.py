@@ -9,6 +9,7 @@ import itertools
 import numpy as np
 import pytest
 from scipy.special import logsumexp
+from scipy.stats import f as f_dist
 from scipy.stats import poisson
 
 import capacity  # noqa: F401
@@ -37,6 +38,24 @@ def test_z_channel_closed_form():
     z = h2(p1 * (1 - np.exp(-lam))) - p1 * h2(np.exp(-lam))
     r = mc_mutual_information(np.array([[0.0], [lam]]), np.array([1 - p1, p1]), n_samples=50_000, seed=2)
     assert abs(r.rate - z) < 4 * r.stderr
+
+
+def test_reported_stderr_matches_spread_over_independent_seeds():
+    # The reported SE is the sample std of the code's own information densities / sqrt(n). Check it against
+    # the spread of k = 24 independent estimates (seeds chosen in advance): with a correct SE and near-normal
+    # estimates (central limit theorem, n = 20000), V / mean(SE^2) ~ F(k-1, k(n-1)) (V: sample variance of the
+    # k estimates; each SE^2 has n-1 degrees of freedom) -- Fisher's variance-ratio test, common practice.
+    # Two-sided 0.1 % quantiles of F(23, ~5e5), [0.30, 2.26], accept an SE at most ~1.5x too small or ~1.8x too
+    # large (an SE scaled by 0.3 or 3 fails).
+    means = np.array([[0.3, 0.2], [4.0, 0.6], [0.5, 5.0], [3.0, 3.5]])
+    p = np.array([0.4, 0.2, 0.2, 0.2])
+    k, n = 24, 20_000
+    results = [mc_mutual_information(means, p, n_samples=n, seed=100 + i) for i in range(k)]
+    est = np.array([r.rate for r in results])
+    se = np.array([r.stderr for r in results])
+    ratio = est.var(ddof=1) / np.mean(se**2)
+    lo, hi = f_dist.ppf([0.0005, 0.9995], k - 1, k * (n - 1))
+    assert lo < ratio < hi, (ratio, lo, hi)
 
 
 def test_seeded_and_errors():

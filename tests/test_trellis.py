@@ -13,6 +13,7 @@ import jax.numpy as jnp
 import numpy as np
 import pytest
 from scipy.special import gammaln, logsumexp
+from scipy.stats import f as f_dist
 from scipy.stats import poisson
 
 import capacity  # noqa: F401  (float64)
@@ -166,6 +167,24 @@ def test_markov_input_with_identical_rows_equals_iid():
     a = information_rate(HITS * 5, BG, SYM, law, n_symbols=4000, n_runs=8, seed=2)
     b = information_rate(HITS * 5, BG, SYM, law[0], n_symbols=4000, n_runs=8, seed=5)
     assert abs(a.rate - b.rate) < 4 * np.hypot(a.stderr, b.stderr)
+
+
+def test_reported_stderr_matches_spread_over_independent_seeds():
+    # The standard error reported by information_rate comes from the spread of the code's own runs; here it is
+    # checked against the spread of fully independent estimates (k = 24 seeds, chosen in advance). If the SE
+    # is right and the estimates are close to normal (central limit theorem over 8 x 2000 symbols), the sample
+    # variance V of the k estimates is sigma^2 chi2_{k-1}/(k-1), and the mean of the k reported SE^2 (each
+    # s^2/8 from 8 runs, 7 degrees of freedom) is sigma^2 chi2_{7k}/(7k), independent of V up to the small
+    # between-seed term; so V / mean(SE^2) ~ F(k-1, 7k) (Fisher's variance-ratio test, common practice). The
+    # two-sided 0.1 % quantiles of F(23, 168), [0.29, 2.48], accept an SE at most ~1.6x too small or ~1.9x too
+    # large (an SE scaled by 0.3 or 3 fails).
+    k, runs = 24, 8
+    results = [information_rate(HITS * 5, BG, SYM, P, n_symbols=2000, n_runs=runs, seed=100 + i) for i in range(k)]
+    est = np.array([r.rate for r in results])
+    se = np.array([r.stderr for r in results])
+    ratio = est.var(ddof=1) / np.mean(se**2)
+    lo, hi = f_dist.ppf([0.0005, 0.9995], k - 1, k * (runs - 1))
+    assert lo < ratio < hi, (ratio, lo, hi)
 
 
 def test_bad_input_raises():
