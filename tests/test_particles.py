@@ -11,6 +11,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from scipy.special import erfc, erfcx
+from scipy.stats import f as f_dist
 
 import capacity  # noqa: F401  (float64)
 from capacity.errors import InputError
@@ -224,6 +225,27 @@ def test_seed_reproducibility_and_chunking():
         first = bigger.survivor_ids[i] < 3000
         np.testing.assert_array_equal(bigger.survivor_ids[i][first], other.survivor_ids[i])
         np.testing.assert_array_equal(bigger.survivor_positions[i][first], other.survivor_positions[i])
+
+
+def test_reported_stderr_matches_spread_over_independent_seeds():
+    # The simulator reports per-slot SE sqrt(p(1-p)/N) and a tail SE from the sample std of its per-molecule
+    # terms; both assume independent molecules. Check them against the spread of k = 24 independent runs (seeds
+    # chosen in advance): with correct SEs and near-normal estimates, V / mean(SE^2) ~ F(k-1, k(N-1)) (V: sample
+    # variance of the k estimates) -- Fisher's variance-ratio test, common practice. Two-sided 0.1 % quantiles
+    # per quantity (0.6 % family-wise over 5 slots + tail, Bonferroni): [0.30, 2.26] in variance, i.e. an SE at
+    # most ~1.5x too small or ~1.8x too large (an SE scaled by 0.3 or 3 fails).
+    k, n = 24, 3000
+    runs = [one_sphere(n, seed=100 + i) for i in range(k)]
+    lo, hi = f_dist.ppf([0.0005, 0.9995], k - 1, k * (n - 1))
+    est = np.array([r.hits[0, 0] for r in runs])  # (k, L+1)
+    se = np.array([r.stderr[0, 0] for r in runs])
+    for slot in range(L + 1):
+        ratio = est[:, slot].var(ddof=1) / np.mean(se[:, slot] ** 2)
+        assert lo < ratio < hi, (slot, ratio, lo, hi)
+    tail = np.array([r.tail[0, 0] for r in runs])
+    tail_se = np.array([r.tail_stderr[0, 0] for r in runs])
+    ratio = tail.var(ddof=1) / np.mean(tail_se**2)
+    assert lo < ratio < hi, ("tail", ratio, lo, hi)
 
 
 @pytest.mark.parametrize(
