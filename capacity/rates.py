@@ -44,19 +44,61 @@ class LinkRates(NamedTuple):
     notes: tuple = ()
     binomial: dict | None = None
     unit_cost: dict | None = None
+    trellis: RateResult | None = None
+    window: RateResult | None = None
+    auxiliary_upper: tuple | None = None
+    law_choice: str = "ISI-free optimum"
+
+    def _lowers(self) -> dict:
+        """Every lower bound (or exact estimate) on the i.i.d. rate: name -> (bits, stderr)."""
+        out = {"ISI as noise (I_sbs)": self.bounds["sbs"], "decision feedback (I_dfe)": self.bounds["dfe"]}
+        if self.window is not None:
+            out[self.window.method] = self.window
+        if self.trellis is not None:
+            out[self.trellis.method] = self.trellis
+        elif "lower bound" in self.information_rate.method:
+            out[self.information_rate.method] = self.information_rate
+        return {k: (float(v.rate), float(v.stderr)) for k, v in out.items()}
+
+    def _uppers(self) -> dict:
+        out = {"matched-filter genie (I_mf)": (float(self.bounds["mf"].rate), float(self.bounds["mf"].stderr))}
+        if self.auxiliary_upper is not None:
+            out["auxiliary-channel upper bound"] = tuple(float(v) for v in self.auxiliary_upper)
+        return out
 
     @property
     def lower_bound(self) -> float:
-        """Best lower bound on the i.i.d. rate: the largest of I_sbs, I_dfe and a reduced-state estimate."""
-        candidates = [self.bounds["sbs"].rate, self.bounds["dfe"].rate]
-        if "lower bound" in self.information_rate.method:
-            candidates.append(self.information_rate.rate)
-        return float(max(candidates))
+        """Best lower bound on the i.i.d. rate: the largest of I_sbs, I_dfe, the windowed bound and the trellis
+        estimate (exact or reduced-state)."""
+        return float(max(v[0] for v in self._lowers().values()))
+
+    @property
+    def lower_bound_method(self) -> str:
+        lowers = self._lowers()
+        return max(lowers, key=lambda k: lowers[k][0])
 
     @property
     def upper_bound(self) -> float:
-        """Matched-filter genie upper bound on the i.i.d. rate."""
-        return float(self.bounds["mf"].rate)
+        """Tightest upper bound on the i.i.d. rate: the smaller of the matched-filter genie and the
+        auxiliary-channel upper bound -E_p ln q(Y)/n - h(Y|X) (Arnold et al. 2006)."""
+        return float(min(v[0] for v in self._uppers().values()))
+
+    @property
+    def upper_bound_method(self) -> str:
+        uppers = self._uppers()
+        return min(uppers, key=lambda k: uppers[k][0])
+
+    def bracket_note(self) -> str | None:
+        """A note when the lower bound exceeds the upper one (Monte Carlo noise), with the distance in SEs."""
+        lo = self._lowers()[self.lower_bound_method]
+        up = self._uppers()[self.upper_bound_method]
+        if lo[0] <= up[0]:
+            return None
+        se = float(np.hypot(lo[1], up[1]))
+        k = (lo[0] - up[0]) / se if se > 0 else float("inf")
+        return (f"lower bound {lo[0]:.4g} ({self.lower_bound_method}) exceeds upper bound {up[0]:.4g} "
+                f"({self.upper_bound_method}) by {lo[0] - up[0]:.2g} bits = {k:.1f} combined standard errors: "
+                "Monte Carlo noise" + ("" if k < 3 else "; more than 3 SE, increase n_symbols/bound_samples"))
 
     def per_second(self, bits_per_symbol: float) -> float:
         return float(bits_per_symbol) / self.symbol_interval
@@ -85,8 +127,15 @@ class LinkRates(NamedTuple):
             "stderr": r.stderr,
             "rate_method": r.method,
             "rate_message": r.message,
+            "input_law_choice": self.law_choice,
             "lower_bound": self.lower_bound,
+            "lower_bound_method": self.lower_bound_method,
             "upper_bound": self.upper_bound,
+            "upper_bound_method": self.upper_bound_method,
+            "bracket_relative": ((self.upper_bound - self.lower_bound) / self.lower_bound
+                                 if self.lower_bound > 0 else None),
+            "lower_bounds": {k: {"rate": v[0], "stderr": v[1]} for k, v in self._lowers().items()},
+            "upper_bounds": {k: {"rate": v[0], "stderr": v[1]} for k, v in self._uppers().items()},
             "bounds": {k: {"rate": v.rate, "stderr": v.stderr, "method": v.method} for k, v in self.bounds.items()},
             "mean_molecules": self.mean_molecules,
             "symbol_interval": self.symbol_interval,
@@ -132,6 +181,9 @@ def link_rates(
     seed: int | None = None,
     tol: float = 1e-9,
     max_states: int = 4096,
+    window_samples: int = 4096,
+    optimise_law: bool = True,
+    candidate_laws: dict | None = None,
 ) -> LinkRates:
     """All rates of a link.
 
@@ -145,11 +197,20 @@ def link_rates(
     n_symbols, n_runs : forward-recursion length and independent runs (standard error from their spread).
     bound_samples : Monte Carlo samples for bounds that cannot be enumerated.
     seed : default ``scenario.channel.seed``.
+    window_samples : Monte Carlo pasts of the windowed decision-feedback bound.
+    optimise_law : when no ``iid_input`` is given and there is memory, also try the i.i.d. law optimised for the
+        rate with ISI (:func:`capacity.information.iid_law.optimise_iid_law`) and keep the better one.
+    candidate_laws : name -> (S,) further laws to try (those over the budget are skipped).
+
+    The reported ``information_rate`` is the forward-recursion estimate when the trellis keeps every lag, else
+    the larger of its reduced-state lower bound and the windowed bound; ``lower_bound``/``upper_bound`` are the
+    tightest of all bounds computed (each named in ``to_dict``).
     """
     from capacity.channel.transition import poisson_transition, symbol_means
     from capacity.information.blahut_arimoto import blahut_arimoto
     from capacity.information.bounds import isi_bounds
-    from capacity.information.trellis import information_rate
+    from capacity.information.trellis import trellis_rates
+    from capacity.information.window import window_bound
 
     budget = scenario.signalling.budget if budget is None else budget
     seed = scenario.channel.seed if seed is None else seed
@@ -181,21 +242,85 @@ def link_rates(
                      "the Poisson law")
     law = np.asarray(isi_free.input_distribution if iid_input is None else iid_input, dtype=float)
     law = law / law.sum()
-    if scenario.channel.residual == "interference":
-        interference = residual_interference(response.tail, symbols, law)
+    law_choice = "given" if iid_input is not None else "ISI-free optimum (Blahut-Arimoto, release slot only)"
+    tail = np.asarray(response.tail, dtype=float)
+    use_tail = scenario.channel.residual == "interference"
+    L = hits.shape[2] - 1
+    if L > 0 and (optimise_law or candidate_laws):
+        law, law_choice, law_note = _choose_law(hits, background, symbols, cost, budget, law, law_choice,
+                                                tail if use_tail else None, candidate_laws, optimise_law, seed)
+        notes.append(law_note)
+    if use_tail:
+        interference = residual_interference(tail, symbols, law)
         notes.append("mass beyond the kept lags added as mean interference "
                      f"({', '.join(f'{v:.3g}' for v in interference)} counts per slot)")
     else:
         interference = np.zeros(hits.shape[1])
         notes.append("mass beyond the kept lags dropped (channel.residual = 'drop')")
 
-    rate = information_rate(hits, background, symbols, law, interference=interference, n_symbols=n_symbols,
-                            n_runs=n_runs, seed=seed, max_states=max_states)
+    tr = trellis_rates(hits, background, symbols, law, interference=interference, n_symbols=n_symbols,
+                       n_runs=n_runs, seed=seed, max_states=max_states)
+    trellis = _trellis_result(tr, n_symbols, seed)
+    k = tr["upper"].size
+    aux_upper = (float(tr["upper"].mean()), float(tr["upper"].std(ddof=1) / np.sqrt(k)))
+    window = window_bound(hits, background, symbols, law, interference=interference, n_samples=window_samples,
+                          seed=seed + 3) if L > 0 else None
     bounds = isi_bounds(hits, background, symbols, law, interference=interference, n_samples=bound_samples,
                         seed=seed + 1)
+    headline = trellis
+    if not tr["exact"] and window is not None and window.rate > trellis.rate:
+        headline = window
+        notes.append(f"the windowed decision-feedback bound ({window.rate:.4g} bits) beats the reduced-state "
+                     f"trellis bound ({trellis.rate:.4g}): it is the rate reported")
     mean_molecules = float(law @ cost)
-    return LinkRates(alphabet, isi_free, law, rate, bounds, mean_molecules, scenario.channel.symbol_interval,
-                     np.asarray(interference), tuple(notes), binomial, unit_cost)
+    out = LinkRates(alphabet, isi_free, law, headline, bounds, mean_molecules, scenario.channel.symbol_interval,
+                    np.asarray(interference), tuple(notes), binomial, unit_cost, trellis, window, aux_upper,
+                    law_choice)
+    note = out.bracket_note()
+    return out._replace(notes=out.notes + (note,)) if note else out
+
+
+def _trellis_result(tr: dict, n_symbols: int, seed: int) -> RateResult:
+    """RateResult of the forward recursion (exact state) or of its reduced-state lower bound."""
+    lo = tr["lower"]
+    k = lo.size
+    se = float(lo.std(ddof=1) / np.sqrt(k))
+    if tr["exact"]:
+        return RateResult(float(lo.mean()), se, "forward recursion (exact state)", int(n_symbols) * k, int(seed),
+                          f"{tr['states']} trellis states, memory L={tr['memory']}; standard error from the "
+                          f"spread of {k} independent runs of {n_symbols} symbols")
+    return RateResult(float(lo.mean()), se, f"reduced-state trellis lower bound (keeps {tr['kept']} of "
+                      f"{tr['memory']} lags)", int(n_symbols) * k, int(seed),
+                      f"auxiliary channel keeps {tr['kept']} of {tr['memory']} lags exactly ({tr['states']} "
+                      "states), the rest as mean interference; outputs simulated from the full channel")
+
+
+def _choose_law(hits, background, symbols, cost, budget, law, law_choice, tail, candidate_laws, optimise_law,
+                seed):
+    """The i.i.d. law with the largest windowed bound (common random numbers) among the given one, the law
+    optimised for the rate with ISI (mirror ascent, :mod:`capacity.information.iid_law`) and any candidates
+    (laws found at smaller budgets stay feasible at larger ones)."""
+    from capacity.information.iid_law import optimise_iid_law
+    from capacity.information.window import window_bound
+
+    base = np.broadcast_to(np.asarray(background, dtype=float), (hits.shape[1],))
+    candidates = [(law_choice, law)]
+    if optimise_law:
+        opt = optimise_iid_law(hits, base, symbols, cost, budget, law, tail=tail, seed=seed + 2)
+        candidates.append(("optimised for the rate with ISI (windowed bound, mirror ascent)", opt.law))
+    for name, cand in (candidate_laws or {}).items():
+        cand = np.asarray(cand, dtype=float)
+        if budget is None or cand @ cost <= budget + 1e-9:
+            candidates.append((name, cand / cand.sum()))
+    scores = []
+    for _name, cand in candidates:
+        interference = residual_interference(tail, symbols, cand) if tail is not None else None
+        w = window_bound(hits, base, symbols, cand, interference=interference, n_samples=2048, seed=seed + 4)
+        scores.append(w.rate)
+    best = int(np.argmax(scores))
+    name, chosen = candidates[best]
+    listing = ", ".join(f"{n}: {v:.4g}" for (n, _), v in zip(candidates, scores, strict=True))
+    return chosen, name, f"input law chosen by the windowed bound on common random numbers ({listing} bits)"
 
 
 def _unit_cost(transition, cost, alphabet) -> dict:

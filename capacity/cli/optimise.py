@@ -31,9 +31,10 @@ def add_parser(sub) -> None:
             "below the peak); split (share of each symbol's molecules per emitter); gap (moves every receiver "
             "along the line from its nearest emitter; the value is the smallest surface gap, m); spacing "
             "(scales receiver offsets from their centroid; 1 = as given); radius (scales every radius, "
-            "keeping each receiver's surface gap; 1 = as given). The rate optimised is the ISI-free capacity "
-            "with the ISI as mean interference (envelope gradient), or ISI as noise; the best design is then "
-            "checked with the information rate with ISI (forward recursion) and its bounds."
+            "keeping each receiver's surface gap; 1 = as given). By default the rate optimised is a "
+            "lower bound on the information rate with ISI in which a symbol's late-arriving molecules count as "
+            "signal (isi-window); the best design is then checked with the information rate with ISI (forward "
+            "recursion) and its bounds."
         ),
     )
     add_scenario_argument(p)
@@ -41,8 +42,11 @@ def add_parser(sub) -> None:
                    help="comma-separated tunables: symbol_interval,levels,split,gap,spacing,radius")
     p.add_argument("--objective", required=True, choices=tuple(OBJECTIVE_UNITS),
                    help="what to maximise")
-    p.add_argument("--rate", default="envelope", choices=("envelope", "isi-as-noise"),
-                   help="differentiable rate to optimise (default envelope)")
+    p.add_argument("--rate", default="auto", choices=("auto", "isi-window", "mean-isi", "isi-as-noise", "envelope"),
+                   help="differentiable rate to optimise: isi-window (windowed decision-feedback lower bound on "
+                        "the rate with ISI; late arrivals count as signal), mean-isi (fast: release-slot capacity "
+                        "with the ISI as mean interference; 'envelope' is its earlier name), isi-as-noise; "
+                        "default auto = isi-window when the memory is > 0")
     p.add_argument("--starts", type=int, default=4, metavar="N", help="seeded starts (default 4)")
     p.add_argument("--steps", type=int, default=200, metavar="N",
                    help="most optimiser steps per start; a start stops early once converged (default 200)")

@@ -8,7 +8,19 @@ Chain (all JAX, differentiable in every tunable of :mod:`capacity.design.params`
 
 Rates (name them with ``rate=``; every result says which was used):
 
-``"envelope"`` (default)
+``"isi-window"`` (default whenever the memory L > 0)
+    The windowed decision-feedback lower bound on the i.i.d. rate with ISI,
+    I(X_k; Y_k..Y_(k+J) | X_(k-1..k-L)) (:mod:`capacity.information.window`): the molecules of a symbol that
+    arrive in the J slots after its own count as signal, the J future symbols are summed over as noise, the past
+    is known (it is in the chain rule for i.i.d. inputs, so this is a true lower bound, not a genie). J is the
+    largest window with S^J <= :data:`WINDOW_FUTURES` futures (J <= L). Estimated by Monte Carlo with common
+    random numbers (the same key at every design; :data:`WINDOW_SAMPLES` pasts, each with every symbol drawn),
+    differentiated by the
+    likelihood-ratio identity with a mean baseline. Input law: the Blahut–Arimoto optimum of the mean-isi
+    channel below at the same design (held fixed in the gradient). This is the rate the tool reports as its
+    lower bound where the trellis cannot keep every lag, so the optimiser and ``capacity rate`` aim at the same
+    number.
+``"mean-isi"`` (alias ``"envelope"``; fast)
     Memoryless channel: slot-0 hits carry the symbol; the ISI residual (lags 1..L, plus the tail beyond L when
     ``channel.residual = "interference"``) enters as MEAN interference at the current input law,
     ``b_j + sum_i E[x_i] (sum_{l>=1} p_ijl + tail_ij)``. The capacity C(theta) is the Blahut–Arimoto optimum
@@ -52,11 +64,24 @@ from capacity.errors import InputError
 from capacity.information.blahut_arimoto import mutual_information
 
 OBJECTIVES = ("bits-per-symbol", "bits-per-second", "bits-per-molecule")
-RATES = ("envelope", "isi-as-noise")
+RATES = ("isi-window", "mean-isi", "isi-as-noise")
+#: earlier names still accepted
+RATE_ALIASES = {"envelope": "mean-isi", "window": "isi-window"}
+WINDOW_SAMPLES = 1024
+#: largest number of futures S^J summed over by the isi-window objective (the reported bound allows 256)
+WINDOW_FUTURES = 128
 FIXED_POINT_PASSES = 3
 MAX_OUTPUTS = 200_000  # product-grid outputs per evaluation
 MAX_MIXTURE = 4_000_000  # S * P * Y entries of the isi-as-noise mixture
 LN2 = math.log(2.0)
+
+
+def canonical_rate(rate: str) -> str:
+    """The rate's current name (earlier names accepted); InputError for an unknown one."""
+    rate = RATE_ALIASES.get(rate, rate)
+    if rate not in RATES:
+        raise InputError("rate", rate, "unknown rate", f"use one of {', '.join(RATES)}")
+    return rate
 
 
 class Problem(NamedTuple):
@@ -67,7 +92,8 @@ class Problem(NamedTuple):
     model : "lone" or "shadowed" (differentiable response models).  memory : L lags (static).
     residual : "interference" (tail added as mean interference) or "drop".
     objective : one of :data:`OBJECTIVES`.  rate : one of :data:`RATES`.
-    budget : mean molecules per symbol or None.  lags : lags enumerated by "isi-as-noise" (static).
+    budget : mean molecules per symbol or None.  lags : lags enumerated by "isi-as-noise", or the look-ahead J
+    of "isi-window" (static).
     """
 
     space: DesignSpace
@@ -139,7 +165,7 @@ def channel_means(problem: Problem, hits, tail, sym, law):
     over the P = S^lags enumerated pasts, with their log probabilities log_weights (P,).
     """
     n_sym = sym.shape[0]
-    keep = 1 if problem.rate == "envelope" else 1 + problem.lags
+    keep = 1 + problem.lags if problem.rate == "isi-as-noise" else 1
     resid = jnp.sum(hits[:, :, keep:], axis=-1)
     if problem.residual == "interference":
         resid = resid + tail
@@ -231,11 +257,11 @@ def _surrogate(problem: Problem, sizes: tuple, arrays, fixed: Fixed):
     bits = mutual_information(law, log_w)  # truncated mass as one overflow output, as in blahut_arimoto
     molecules = law @ jnp.sum(sym, axis=1)
     budget = problem.budget
-    lagr = bits if budget is None or problem.rate != "envelope" else bits - fixed.slope * (molecules - budget)
+    lagr = bits if budget is None or problem.rate != "mean-isi" else bits - fixed.slope * (molecules - budget)
     if problem.objective == "bits-per-second":
         value = lagr / ts
     elif problem.objective == "bits-per-molecule":
-        if budget is not None and problem.rate == "envelope":
+        if budget is not None and problem.rate == "mean-isi":
             value = lagr / jnp.where(fixed.slope > 0, budget, molecules)
         else:
             value = lagr / molecules
@@ -285,8 +311,7 @@ class Objective:
     def __init__(self, problem: Problem):
         if problem.objective not in OBJECTIVES:
             raise InputError("objective", problem.objective, "unknown objective", f"use one of {OBJECTIVES}")
-        if problem.rate not in RATES:
-            raise InputError("rate", problem.rate, "unknown rate", f"use one of {RATES}")
+        problem = problem._replace(rate=canonical_rate(problem.rate))
         self.problem = problem
         self.evaluations = 0
         n_sym = np.shape(problem.base_symbols)[0]
@@ -314,7 +339,7 @@ class Objective:
         from capacity.information.blahut_arimoto import blahut_arimoto
 
         problem = self.problem
-        if problem.rate != "envelope":
+        if problem.rate == "isi-as-noise":
             n_sym = np.shape(problem.base_symbols)[0]
             return np.full(n_sym, 1.0 / n_sym), 0.0, 0.0
         law = self._law
@@ -342,6 +367,8 @@ class Objective:
         arrays = self._forward(u)
         law, slope, gap = self._solve(arrays)
         self._law = law
+        if self.problem.rate == "isi-window":
+            return self._evaluate_window(u, arrays, law, slope, gap, grad)
         means = np.asarray(self._means(arrays, jnp.asarray(law)))
         lo, sizes, _ = choose_grid(means)
         sizes = self._grow(sizes)
@@ -365,3 +392,60 @@ class Objective:
             raise InputError("design", {k: np.asarray(v).tolist() for k, v in u.items()},
                              "the objective is not finite here", "narrow the bounds of the tuned parameters")
         return Evaluation(value, float(bits), float(molecules), law, slope, gap, trunc, g)
+
+    def _evaluate_window(self, u, arrays, law, slope, gap, grad) -> Evaluation:
+        """The isi-window rate: draws at the current design (fixed key), then the surrogate and its gradient."""
+        from capacity.information.window import chunk_size, draw
+
+        problem = self.problem
+        hits, tail, sym, _ = arrays
+        n_sym, n_rec = np.shape(sym)[0], np.shape(hits)[1]
+        J = problem.lags
+        chunk = chunk_size(n_sym, J, n_rec)
+        lawj = jnp.asarray(law)
+        base = _window_base(problem, tail, sym, lawj)
+        samples = draw(jax.random.PRNGKey(WINDOW_SEED), hits, base, sym, lawj, memory_past=problem.memory, J=J,
+                       n=WINDOW_SAMPLES)
+        if "window" not in self._vg:
+            fn = lambda arr, lw, smp: _window_value(problem, J, chunk, arr, lw, smp)  # noqa: E731
+            self._vg["window"] = (jax.jit(jax.value_and_grad(fn, has_aux=True)), jax.jit(fn))
+        vg, val = self._vg["window"]
+        if grad:
+            (_, (bits, molecules, ts)), ct = vg(arrays, lawj, samples)
+            g = {k: np.asarray(v) for k, v in self._pull(u, ct).items()}
+        else:
+            _, (bits, molecules, ts) = val(arrays, lawj, samples)
+            g = None
+        value = objective_value(problem.objective, float(bits), float(molecules), float(ts))
+        if not math.isfinite(value):
+            raise InputError("design", {k: np.asarray(v).tolist() for k, v in u.items()},
+                             "the objective is not finite here", "narrow the bounds of the tuned parameters")
+        return Evaluation(value, float(bits), float(molecules), law, slope, gap, 0.0, g)
+
+
+WINDOW_SEED = 20261202
+
+
+def _window_base(problem: Problem, tail, sym, law):
+    """Background plus the residual tail as mean interference (when ``residual = "interference"``), (R,)."""
+    base = jnp.asarray(problem.background)
+    if problem.residual == "interference":
+        base = base + (law @ sym) @ tail
+    return base
+
+
+def _window_value(problem: Problem, J: int, chunk: int, arrays, law, samples):
+    """(objective, (bits, molecules, Ts)) of the isi-window rate; value = estimate, gradient = likelihood ratio."""
+    from capacity.information.window import surrogate
+
+    hits, tail, sym, ts = arrays
+    base = _window_base(problem, tail, sym, law)
+    bits = surrogate(hits, base, sym, law, *samples, J=J, chunk=chunk)
+    molecules = law @ jnp.sum(sym, axis=1)
+    if problem.objective == "bits-per-second":
+        value = bits / ts
+    elif problem.objective == "bits-per-molecule":
+        value = bits / molecules
+    else:
+        value = bits
+    return value, (bits, molecules, ts)

@@ -97,6 +97,7 @@ def _log_window(y, known, now, fut, log_law, log_fut):
     return logsumexp(ll + log_fut[None, None, None, :], axis=-1)
 
 
+@partial(jax.jit, static_argnames=("memory_past", "J", "n"))
 def draw(key, hits, base, sym, law, *, memory_past: int, J: int, n: int):
     """Common random numbers for the estimator: past (n, L) symbols, future (n, S, J) symbols, and the window
     counts y (n, S, J+1, R) drawn from the true channel for each current symbol s."""
