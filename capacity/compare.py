@@ -18,8 +18,25 @@ from capacity.errors import InputError
 SCHEMES = ("amplitude", "spatial", "multiplex", "hybrid")
 CSV_FIELDS = (
     "scheme", "budget", "mean_molecules", "isi_free_capacity", "gap", "information_rate", "stderr",
-    "lower_bound", "upper_bound", "bits_per_second", "bits_per_molecule", "rate_method",
+    "lower_bound", "upper_bound", "bits_per_second", "bits_per_molecule", "rate_method", "input_law",
+    "lower_bound_method", "upper_bound_method", "bracket_relative", "flag",
 )
+#: a bracket (upper - lower) / lower wider than this is flagged in the CSV with its reason
+BRACKET_TARGET = 0.05
+
+
+def bracket_flag(d: dict) -> str:
+    """Why a point's bracket misses :data:`BRACKET_TARGET`, or "" (d: a ``LinkRates.to_dict()`` record)."""
+    lo, up = d["lower_bound"], d["upper_bound"]
+    rel = d.get("bracket_relative")
+    if rel is None:
+        return "no positive lower bound"
+    if lo > up:
+        return "lower above upper (Monte Carlo noise, see notes)"
+    if rel <= BRACKET_TARGET:
+        return ""
+    return (f"bracket {100 * rel:.0f}% > {100 * BRACKET_TARGET:.0f}%: lower from {d['lower_bound_method']}, upper "
+            f"from {d['upper_bound_method']} (the trellis keeps too few lags for the auxiliary channel to be close)")
 
 
 def scheme_alphabet(scenario, scheme: str):
@@ -53,6 +70,11 @@ def _row(scheme, budget, rates) -> dict:
         "bits_per_second": d["bits_per_second"]["information_rate"],
         "bits_per_molecule": d["bits_per_molecule"]["information_rate"],
         "rate_method": d["rate_method"],
+        "input_law": d["input_law_choice"],
+        "lower_bound_method": d["lower_bound_method"],
+        "upper_bound_method": d["upper_bound_method"],
+        "bracket_relative": d["bracket_relative"],
+        "flag": bracket_flag(d),
     }
 
 
@@ -106,7 +128,11 @@ def compare_schemes(scenario, response, schemes=None, *, budget=None, n_symbols=
 
 def budget_sweep(scenario, response, budgets, schemes=None, *, n_symbols=5_000, n_runs=4, seed=None,
                  csv_path: str | Path | None = None, progress: Callable | None = None) -> dict:
-    """Rate-versus-budget curves. Each finished point is appended to ``csv_path`` at once (no lost work).
+    """Rate-versus-budget curves of the best rate found at each budget, non-decreasing by construction.
+
+    Budgets are taken in increasing order; the best law found so far is a candidate at every larger budget, and
+    when it still beats the law found there its row is carried (``input_law`` says so): unused molecules cost
+    nothing. Each finished point is appended to ``csv_path`` at once (no lost work).
 
     Returns {scheme: {"budget", "rate", "stderr", "lower", "upper", "isi_free", "symbol_interval"}}.
     """
@@ -125,14 +151,23 @@ def budget_sweep(scenario, response, budgets, schemes=None, *, n_symbols=5_000, 
     try:
         for scheme in schemes:
             alphabet = scheme_alphabet(scenario, scheme)
-            for b in budgets:
+            best_row, best_law = None, None
+            for b in sorted(budgets):
                 if b < alphabet.cost.min() or b <= 0:
                     continue
+                cands = None if best_law is None else {f"best law at budget {best_row['budget']:g}": best_law}
                 rates = link_rates(scenario, response, alphabet, budget=float(b), n_symbols=n_symbols,
-                                   n_runs=n_runs, seed=seed)
+                                   n_runs=n_runs, seed=seed, candidate_laws=cands)
                 row = _row(scheme, float(b), rates)
+                if best_row is not None and row["information_rate"] < best_row["information_rate"]:
+                    # the law found at a smaller budget is feasible here and, on the same random numbers, gives
+                    # the same estimate: the best rate at this budget is at least that
+                    row = dict(best_row, budget=float(b),
+                               input_law=f"carried from budget {best_row['budget']:g} ({best_row['input_law']})")
+                else:
+                    best_row, best_law = row, np.asarray(rates.iid_input)
                 c = curves[scheme]
-                c["budget"].append(rates.mean_molecules)
+                c["budget"].append(float(b))
                 c["rate"].append(row["information_rate"])
                 c["stderr"].append(row["stderr"])
                 c["lower"].append(row["lower_bound"])
