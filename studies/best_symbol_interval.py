@@ -23,13 +23,15 @@ from _record import write_record  # noqa: E402
 
 import capacity  # noqa: E402,F401
 from capacity.cli._common import load  # noqa: E402
+from capacity.compare import bracket_flag  # noqa: E402
 from capacity.physics.response import channel_response  # noqa: E402
 from capacity.rates import link_rates  # noqa: E402
 from capacity.report.plots import _log_axis, save_figure  # noqa: E402
 from capacity.schemes.builders import build_alphabet  # noqa: E402
 
 FIELDS = ("symbol_interval", "memory", "isi_free_capacity", "information_rate", "stderr", "lower_bound",
-          "upper_bound", "mean_molecules", "bits_per_second", "bits_per_molecule", "rate_method")
+          "upper_bound", "mean_molecules", "bits_per_second", "bits_per_molecule", "rate_method", "input_law",
+          "lower_bound_method", "upper_bound_method", "bracket_relative", "flag")
 
 
 def main(argv=None) -> int:
@@ -61,6 +63,9 @@ def main(argv=None) -> int:
                 "mean_molecules": d["mean_molecules"],
                 "bits_per_second": d["bits_per_second"]["information_rate"],
                 "bits_per_molecule": d["bits_per_molecule"]["information_rate"], "rate_method": d["rate_method"],
+                "input_law": d["input_law_choice"], "lower_bound_method": d["lower_bound_method"],
+                "upper_bound_method": d["upper_bound_method"], "bracket_relative": d["bracket_relative"],
+                "flag": bracket_flag(d),
             }
             writer.writerow(row)
             handle.flush()

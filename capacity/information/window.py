@@ -34,6 +34,7 @@ import jax.numpy as jnp
 import numpy as np
 from jax.scipy.special import logsumexp, xlogy
 
+from capacity import _jax  # noqa: F401  (float64)
 from capacity.errors import InputError
 from capacity.information.result import RateResult
 from capacity.information.trellis import check_channel, check_law
@@ -150,7 +151,9 @@ def window_terms(hits, base, sym, law, past, fut, y, *, J: int, chunk: int):
         lpy = logsumexp(lw + log_law[None, None, :], axis=-1)
         return jnp.diagonal(lw, axis1=1, axis2=2) - lpy
 
-    pp = jnp.concatenate([past, jnp.zeros((pad,) + past.shape[1:], past.dtype)]).reshape((-1, chunk) + past.shape[1:])
+    # memoryless (L = 0): one dummy past symbol, at lag j + 1 > L where the padded hits are zero
+    pk = past if past.shape[1] else jnp.zeros((n, 1), past.dtype)
+    pp = jnp.concatenate([pk, jnp.zeros((pad,) + pk.shape[1:], pk.dtype)]).reshape((-1, chunk) + pk.shape[1:])
     yy = jnp.concatenate([y, jnp.zeros((pad,) + y.shape[1:])]).reshape((-1, chunk) + y.shape[1:])
     g = jax.lax.map(one, (pp, yy)).reshape(-1, S)[:n]
     mean = true_means(hits, base, sym, past, fut, J)
@@ -190,6 +193,9 @@ def window_bound(hits, background, symbols, input_law, *, interference=None, win
         raise InputError("input_law", np.shape(input_law), "the windowed bound needs an i.i.d. law (S,)",
                          "pass the stationary symbol law")
     L = h.shape[2] - 1
+    for name, value in (("window", window), ("n_samples", n_samples)):
+        if value is not None and (isinstance(value, bool) or not isinstance(value, (int, np.integer))):
+            raise InputError(name, value, "must be a whole number", "use e.g. window=2, n_samples=4096")
     J = auto_window(S, L, max_futures) if window is None else int(window)
     if not 0 <= J:
         raise InputError("window", window, "must be a non-negative number of look-ahead slots", "use e.g. 2")
