@@ -77,12 +77,21 @@ def format_rates(scenario, response, rates) -> str:
         lines.append(f"  {name:<34}{fmt(value):>12}{fmt(err) if err else '':>10}{fmt(value / ts):>10}"
                      f"{fmt(per_mol):>15}")
 
-    row("ISI-free capacity", cap.capacity, cap.gap, cap.mean_cost)
-    row("i.i.d. rate with ISI", rates.information_rate.rate, rates.information_rate.stderr, m)
-    b = rates.bounds
-    row("  lower: ISI as noise (sbs)", b["sbs"].rate, b["sbs"].stderr, m)
-    row("  lower: decision feedback (dfe)", b["dfe"].rate, b["dfe"].stderr, m)
-    row("  upper: matched filter (mf)", b["mf"].rate, b["mf"].stderr, m)
+    row("release-slot capacity (no ISI)", cap.capacity, cap.gap, cap.mean_cost)
+    head = rates.information_rate
+    row("rate with ISI (reported)", head.rate, head.stderr, m)
+    lines.append(f"    = {head.method}")
+    row("bracket: lower bound", rates.lower_bound, d["lower_bounds"][rates.lower_bound_method]["stderr"], m)
+    lines.append(f"    = {rates.lower_bound_method}")
+    row("bracket: upper bound", rates.upper_bound, d["upper_bounds"][rates.upper_bound_method]["stderr"], m)
+    lines.append(f"    = {rates.upper_bound_method}")
+    if d["bracket_relative"] is not None:
+        lines.append(f"    bracket width {100 * d['bracket_relative']:.1f}% of the lower bound")
+    lines.append("  every bound computed (bits/symbol +/- standard error):")
+    for kind in ("lower_bounds", "upper_bounds"):
+        for name, v in d[kind].items():
+            err = fmt(v["stderr"]) if v["stderr"] else "0"
+            lines.append(f"    {kind[:5]}  {fmt(v['rate']):>10} +/- {err:<9} {name}")
     lines.append("")
     uc = rates.unit_cost or {}
     if uc.get("bits_per_molecule") is not None:
@@ -92,7 +101,7 @@ def format_rates(scenario, response, rates) -> str:
     lines.append(f"  rate with ISI: {rates.information_rate.method}; {rates.information_rate.message}")
     law = np.asarray(rates.iid_input)
     used = [f"{lab} ({p:.3f})" for lab, p in zip(rates.alphabet.labels, law, strict=True) if p > 1e-4]
-    lines.append("  input law: " + ", ".join(used))
+    lines.append(f"  input law ({rates.law_choice}): " + ", ".join(used))
     for note in tuple(response.notes) + tuple(rates.notes):
         lines.append(f"  note: {note}")
     lines.append(f"  {SAFETY}")
@@ -109,8 +118,9 @@ def markov_record(scenario, response, rates, *, n_symbols, seed) -> dict:
                                   interference=rates.interference, n_symbols=n_symbols,
                                   seed=scenario.channel.seed if seed is None else seed,
                                   budget=scenario.signalling.budget)
-    except InputError as exc:
-        return {"rate": None, "reason": str(exc)}
+    except InputError as exc:  # asked for explicitly: a named error (exit 2), nothing printed as a result
+        raise InputError("--markov", "requested", f"cannot apply here: {exc}",
+                         "drop --markov, or shorten the memory (channel.memory) or use fewer symbols") from exc
     return {"rate": result.rate, "stderr": result.stderr, "method": result.method, "message": result.message,
             "bits_per_second": result.rate / rates.symbol_interval, "transition_law": law}
 
@@ -126,7 +136,7 @@ def run(args) -> int:
     if args.markov:
         record["markov_input"] = markov_record(scenario, response, rates, n_symbols=args.symbols, seed=args.seed)
         m = record["markov_input"]
-        text += ("\n  optimised Markov input: " + (f"{fmt(m['rate'])} +/- {fmt(m['stderr'])} bits/symbol "
-                 f"({fmt(m['bits_per_second'])} bits/s)" if m["rate"] is not None else f"not run: {m['reason']}"))
+        text += (f"\n  optimised Markov input: {fmt(m['rate'])} +/- {fmt(m['stderr'])} bits/symbol "
+                 f"({fmt(m['bits_per_second'])} bits/s)")
     print(dump_json(record) if args.json else text)
     return 0
