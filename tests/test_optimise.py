@@ -218,3 +218,19 @@ def test_demo_like_layout_best_symbol_interval_and_bits_per_molecule():
     levels = [np.array([v]) for v in np.linspace(2, 99.9, 30)]
     best2, _, _ = grid_search(sc2, "levels", "bits-per-molecule", levels)
     assert res2.value >= best2 * (1 - 0.01)
+
+
+@pytest.mark.slow
+def test_interval_pick_holds_against_a_sweep_of_the_reported_rate():
+    # acceptance: on the single-bead on-off layout the optimiser's interval gives, by what `capacity rate` reports,
+    # at least 97 % of the best bits/s over a log grid of 8 intervals from 30 ms to 1 s (brute-force sweep)
+    import importlib.util
+    from pathlib import Path
+
+    path = Path(__file__).resolve().parents[1] / "benchmarks" / "bench_interval_pick.py"
+    spec = importlib.util.spec_from_file_location("bench_interval_pick", path)
+    bench = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(bench)
+    rec = bench.interval_pick(str(bench.SINGLE))
+    assert rec["grid_points"] >= 8
+    assert rec["ratio_to_grid_best"] >= 0.97
