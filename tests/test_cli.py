@@ -212,3 +212,16 @@ def test_compare_at_equal_budget_and_over_budgets(tmp_path):
     assert len(rows) == 1 + 2 * 3
     assert (out / "curves.png").stat().st_size > 1000
     assert (out / "compare.json").exists()
+
+
+def test_markov_that_cannot_apply_is_a_named_error_exit_2(tmp_path):
+    # 8 amplitude levels over 3 lags: 8^3 = 512 source states > the Markov optimiser's 256 (capacity/cli/rate.py)
+    path = tmp_path / "big.toml"
+    path.write_text(SMALL.replace("memory = 2", "memory = 3").replace("levels = 2", "levels = 8"))
+    out = tmp_path / "out.json"
+    proc = _run("rate", str(path), "--markov", "--json", check=False)
+    assert proc.returncode == 2
+    assert "Traceback" not in proc.stderr and proc.stdout == ""
+    line = proc.stderr.strip().splitlines()[-1]
+    assert "--markov" in line and "512" in line and "256" in line and "Fix" in line
+    assert not out.exists()

@@ -125,10 +125,30 @@ def markov_record(scenario, response, rates, *, n_symbols, seed) -> dict:
             "bits_per_second": result.rate / rates.symbol_interval, "transition_law": law}
 
 
+MARKOV_MAX_STATES = 256  # the default state limit of capacity.information.markov.markov_rate
+
+
+def check_markov(scenario) -> None:
+    """Refuse ``--markov`` up front (before any long computation) when the source's trellis is too large."""
+    from capacity.errors import InputError
+    from capacity.schemes.builders import build_alphabet
+
+    memory = scenario.channel.memory
+    if not isinstance(memory, int):
+        return  # "auto": known only after the response; markov_record names the limit then
+    n_sym = build_alphabet(scenario.signalling, len(scenario.emitters)).size
+    if n_sym ** memory > MARKOV_MAX_STATES:
+        raise InputError("--markov", "requested", f"a Markov source over {memory} lags of {n_sym} symbols has "
+                         f"{n_sym}^{memory} = {n_sym ** memory} states > {MARKOV_MAX_STATES}",
+                         "drop --markov, or shorten channel.memory, or use fewer symbols (levels)")
+
+
 def run(args) -> int:
     scenario = load(args.scenario)
     if args.budget is not None:
         scenario = scenario.with_signalling(budget=args.budget)
+    if args.markov:
+        check_markov(scenario)
     response, _, rates = compute(scenario, model=args.model, n_symbols=args.symbols, n_runs=args.runs,
                                  seed=args.seed)
     record = rate_record(scenario, response, rates)
