@@ -62,7 +62,8 @@ def run(scenarios=None) -> dict:
 
 
 if __name__ == "__main__":
-    record = run(sys.argv[1:] or None)
     path = HERE.parent / "results" / "interval_pick.json"
+    record = json.loads(path.read_text()) if path.exists() else {}  # one entry per scenario, others kept
+    record.update(run(sys.argv[1:] or None))
     path.write_text(json.dumps(record, indent=1, default=float))
     print(f"wrote {path}")
