@@ -80,14 +80,18 @@ def _known_means(per_lag, base, past, J):
     return jnp.stack(slots, axis=1)
 
 
-def _signal_means(per_lag, futures, S, J):
-    """(S, J+1, R) from the current symbol, (F, J+1, R) from each enumerated future."""
-    now = jnp.stack([per_lag[j] for j in range(J + 1)], axis=1)  # (S, J+1, R)
+def _current_means(per_lag, J):
+    """(S, J+1, R): what the current symbol s adds to each window slot."""
+    return jnp.stack([per_lag[j] for j in range(J + 1)], axis=1)
+
+
+def _future_means(per_lag, futures, J):
+    """(..., J+1, R): what the future symbols ``futures`` (..., J) add to each window slot (nothing to slot 0)."""
     R = per_lag.shape[2]
-    fut = [jnp.zeros((futures.shape[0], R))]
+    parts = [jnp.zeros(futures.shape[:-1] + (R,))]
     for j in range(1, J + 1):
-        fut.append(sum(per_lag[j - i][futures[:, i - 1]] for i in range(1, j + 1)))
-    return now, jnp.stack(fut, axis=1)
+        parts.append(sum(per_lag[j - i][futures[..., i - 1]] for i in range(1, j + 1)))
+    return jnp.stack(parts, axis=-2)
 
 
 def _log_window(y, known, now, fut, log_law, log_fut):
@@ -116,16 +120,8 @@ def draw(key, hits, base, sym, law, *, memory_past: int, J: int, n: int):
 def true_means(hits, base, sym, past, fut, J):
     """Means (n, S, J+1, R) of the window outputs for each current symbol and the drawn past and future."""
     per_lag = _per_lag(hits, sym, J)
-    S = sym.shape[0]
     known = _known_means(per_lag, base, past, J)
-    now = jnp.stack([per_lag[j] for j in range(J + 1)], axis=1)  # (S, J+1, R)
-    R = per_lag.shape[2]
-    parts = [jnp.zeros(fut.shape[:2] + (R,))]
-    for j in range(1, J + 1):
-        parts.append(sum(per_lag[j - i][fut[:, :, i - 1]] for i in range(1, j + 1)))
-    futm = jnp.stack(parts, axis=2)  # (n, S, J+1, R)
-    del S
-    return known[:, None] + now[None] + futm
+    return known[:, None] + _current_means(per_lag, J)[None] + _future_means(per_lag, fut, J)
 
 
 @partial(jax.jit, static_argnames=("J", "chunk"))
@@ -140,7 +136,7 @@ def window_terms(hits, base, sym, law, past, fut, y, *, J: int, chunk: int):
     futures = jnp.asarray(future_digits(S, J))
     log_law = jnp.log(law)
     log_fut = jnp.sum(log_law[futures], axis=1) if J else jnp.zeros(1)
-    now, futm = _signal_means(per_lag, futures, S, J)
+    now, futm = _current_means(per_lag, J), _future_means(per_lag, futures, J)
     n = y.shape[0]
     pad = (-n) % chunk
 
