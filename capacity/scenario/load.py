@@ -62,12 +62,21 @@ _CHANNEL = (
 _SIGNALLING = ("scheme", "levels", "peak", "budget", "emitter", "silent", "amplitudes")
 
 
+#: built-in scenarios, by the name that stands for them wherever a scenario file is asked for
+BUILTIN = {"demo": "demo.toml"}
+
+
 def load_scenario(path: str | PathLike) -> Scenario:
-    """Read a TOML scenario file and return the validated :class:`Scenario` (SI units).
+    """Read a TOML scenario file, or a built-in one by name (``"demo"``), and return the validated
+    :class:`Scenario` (SI units).
 
     Raises :class:`InputError` if the file cannot be read, is not TOML (the parser's line and column are
     given), or describes an invalid scenario.
     """
+    if isinstance(path, str) and path in BUILTIN:
+        from pathlib import Path
+
+        path = Path(__file__).resolve().parent.parent / "data" / BUILTIN[path]
     try:
         with open(path, "rb") as fh:
             raw = fh.read()
