@@ -97,9 +97,10 @@ def format_result(result) -> str:
     lines.append("")
     lines.append(f"  {result.objective} ({result.rate} rate): {fmt(result.value)} {unit}")
     if np.isfinite(result.polished):
-        lines.append(f"  information rate with ISI, i.i.d. input: {fmt(result.polished)} +/- "
+        lines.append(f"  confirmed with what `capacity rate` reports: {fmt(result.polished)} +/- "
                      f"{fmt(result.polished_stderr)} {unit}")
-        lines.append(f"  bounds: {fmt(result.lower_bound)} <= i.i.d. rate <= {fmt(result.upper_bound)} {unit}")
+        lines.append(f"  bracket: {fmt(result.lower_bound)} <= i.i.d. rate with ISI <= {fmt(result.upper_bound)} "
+                     f"{unit}")
     for note in result.notes:
         lines.append(f"  note: {note}")
     lines.append(f"  {SAFETY}")
