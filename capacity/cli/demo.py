@@ -84,8 +84,9 @@ def run(args) -> int:
         best = optimise_design(scenario, ("symbol_interval",), "bits-per-second", starts=2 if args.quick else 3,
                                steps=60 if args.quick else 150, progress=True)
         print(f"best symbol interval {best.best['symbol_interval'] * 1e3:.1f} ms: objective ({best.rate} rate) "
-              f"{best.value:.4g} bits/s; at that interval the trellis rate is {best.polished:.4g} +/- "
-              f"{best.polished_stderr:.2g} bits/s, bounds {best.lower_bound:.4g} .. {best.upper_bound:.4g}")
+              f"{best.value:.4g} bits/s; at that interval the reported rate (as `capacity rate`) is "
+              f"{best.polished:.4g} +/- {best.polished_stderr:.2g} bits/s, bracket {best.lower_bound:.4g} .. "
+              f"{best.upper_bound:.4g}")
         print(best.message)
         dump_json({"best": best.best, "objective": best.objective, "rate": best.rate, "value": best.value,
                    "polished": best.polished, "polished_stderr": best.polished_stderr,
