@@ -13,10 +13,10 @@
    (emitter inside a receiver, receivers closer than the minimum gap) is halved until feasible (up to 8 times,
    else skipped). A run stops early when, over the last ``window`` steps, the objective changed by less than
    ``rtol`` relatively and every step was small (see :func:`run_start`); each start reports both;
-3. confirmation of the best design with exactly what ``capacity rate`` reports on the written scenario
-   (:func:`confirm`: rate with ISI at the better of the ISI-free and the ISI-optimised i.i.d. law, with the
-   tightest bracket), in the objective's units; with a tuned ``split`` (no scenario field) the trellis rate and
-   single-letter bounds at the design's own arrays instead.
+3. confirmation of the best design with the estimators ``capacity rate`` uses on the written scenario
+   (:func:`confirm`, ``polish_symbols`` symbols x 4 runs): the rate with ISI at the better of the ISI-free and
+   the ISI-optimised i.i.d. law, with the tightest bracket, in the objective's units; with a tuned ``split`` (no
+   scenario field) the trellis rate and single-letter bounds at the design's own arrays instead.
 """
 
 from __future__ import annotations
@@ -70,7 +70,8 @@ class DesignResult(NamedTuple):
     converged : whether the best start met the stopping rule.  message : readable summary.
     scenario : the optimised Scenario.
     rate : the differentiable rate used ("isi-window", "mean-isi" or "isi-as-noise").
-    polished : trellis information rate at ``best`` (objective units), NaN if skipped; polished_stderr its SE.
+    polished : the reported rate with ISI at ``best`` (:func:`confirm`; objective units), NaN if skipped;
+        polished_stderr its SE.
     starts : one dict per start (value, best, converged, evaluations, seconds).
     geometry : resulting receiver centres, radii, gaps, receiver distance (m).
     law : (S,) input law at ``best``.  model : response model used.  notes : remarks.
@@ -299,7 +300,8 @@ def polish(scenario, problem: Problem, phys: dict, law, *, n_symbols=20_000, n_r
 
 
 def confirm(scenario, *, n_symbols=20_000, n_runs=4, seed=None):
-    """The rates ``capacity rate`` reports for a scenario (response model and memory as the scenario asks)."""
+    """The rates ``capacity rate`` reports for a scenario (response model and memory as the scenario asks; the
+    same estimators, with ``n_symbols`` x ``n_runs`` simulated symbols)."""
     from capacity.physics.response import channel_response
     from capacity.rates import link_rates
     from capacity.schemes.builders import build_alphabet
