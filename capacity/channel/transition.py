@@ -27,6 +27,7 @@ import numpy as np
 from jax.scipy.special import gammaln
 from scipy import special, stats
 
+from capacity._inputs import real_array, real_number, whole_number
 from capacity.errors import InputError
 
 __all__ = [
@@ -93,7 +94,7 @@ def symbol_means(hits, background, symbols, *, interference=None):
 
 
 def _check_means(means) -> np.ndarray:
-    m = np.asarray(means, dtype=float)
+    m = real_array(means, "means", "pass an (S, R) array of mean counts, e.g. symbol_means(...)")
     if m.ndim != 2 or m.shape[0] < 1 or m.shape[1] < 1:
         raise InputError("means", m.shape, "must have shape (S, R)", "pass symbol_means(...)")
     if not np.all(np.isfinite(m)) or np.any(m < 0):
@@ -101,15 +102,28 @@ def _check_means(means) -> np.ndarray:
     return m
 
 
+def _check_max_outputs(max_outputs) -> int:
+    return whole_number(max_outputs, "max_outputs", "give a positive whole number such as 2_000_000")
+
+
+def _check_tol(tol) -> float:
+    tol = real_number(tol, "tol", "use e.g. 1e-10")
+    if not 0 < tol < 1:
+        raise InputError("tol", tol, "must lie in (0, 1)", "use e.g. 1e-10")
+    return tol
+
+
 def _product_grid(maxima, max_outputs: int, what: str) -> np.ndarray:
-    sizes = [int(v) + 1 for v in maxima]
-    total = int(np.prod(np.asarray(sizes, dtype=float)))
-    if total > max_outputs:
+    max_outputs = _check_max_outputs(max_outputs)
+    total_f = float(np.prod(np.asarray(maxima, dtype=float) + 1.0))
+    if not total_f <= max_outputs:  # also catches an infinite grid before any int() of it
+        shown = " x ".join(str(int(v) + 1) for v in maxima)
         raise InputError(
-            "outputs", f"{' x '.join(map(str, sizes))} = {total} count vectors",
+            "outputs", f"{shown} = {int(total_f) if math.isfinite(total_f) else total_f} count vectors",
             f"the {what} output grid is larger than max_outputs = {max_outputs}",
             "use fewer receivers, smaller releases (lower mean counts), a larger tol, or the Monte Carlo "
             "estimator (capacity.information.montecarlo) instead of an exact transition matrix")
+    sizes = [int(v) + 1 for v in maxima]
     axes = np.meshgrid(*[np.arange(n) for n in sizes], indexing="ij")
     return np.stack([a.ravel() for a in axes], axis=-1).astype(np.int64)
 
@@ -125,10 +139,32 @@ def output_grid(means, tol: float = 1e-10, max_outputs: int = 2_000_000) -> np.n
     """
     m = _check_means(means)
     n_recv = m.shape[1]
-    if not 0 < tol < 1:
-        raise InputError("tol", tol, "must lie in (0, 1)", "use e.g. 1e-10")
-    ymax = stats.poisson.isf(tol / n_recv, m).max(axis=0)
+    tol = _check_tol(tol)
+    ymax = _poisson_upper(tol / n_recv, m).max(axis=0)
     return _product_grid(np.maximum(ymax, 0), max_outputs, "Poisson")
+
+
+def _poisson_upper(q: float, m: np.ndarray) -> np.ndarray:
+    """Smallest y with P(Y > y) <= q for Y ~ Poisson(m), elementwise.
+
+    ``scipy.stats.poisson.isf``, except where it returns NaN (q below ~1e-16, or means beyond ~1e10): there a
+    bisection on ``poisson.sf`` between 0 and the Bernstein bound m + 2L/3 + sqrt(2 m L), L = ln(1/q), which
+    already has P(Y > bound) <= q.
+    """
+    y = np.asarray(stats.poisson.isf(q, m), dtype=float)
+    bad = ~np.isfinite(y)
+    if np.any(bad):
+        mu = m[bad]
+        big_l = -math.log(q)
+        lo = np.full(mu.shape, -1.0)  # P(Y > lo) > q (always true at -1)
+        hi = np.ceil(mu + 2.0 * big_l / 3.0 + np.sqrt(2.0 * mu * big_l)) + 1.0  # P(Y > hi) <= q
+        while np.any(hi - lo > 1.0):
+            mid = np.floor(0.5 * (lo + hi))
+            ok = stats.poisson.sf(mid, mu) <= q
+            hi = np.where(ok, mid, hi)
+            lo = np.where(ok, lo, mid)
+        y[bad] = hi
+    return y
 
 
 def poisson_log_transition(means, outputs):
@@ -223,9 +259,9 @@ def binomial_transition(symbols, probs, background, tol: float = 1e-10, max_outp
     the Poisson background. Raises InputError when the grid exceeds ``max_outputs`` or the convolution
     work exceeds ``max_work`` multiply-adds (fix: Poisson law, fewer receivers, smaller releases).
     """
-    x = np.asarray(symbols)
-    pr = np.asarray(probs, dtype=float)
-    bg = np.asarray(background, dtype=float)
+    x = real_array(symbols, "symbols", "give an (S, E) array of whole molecule counts")
+    pr = real_array(probs, "probs", "pass hits[:, :, 0]")
+    bg = real_array(background, "background", "give one mean background count per receiver")
     if x.ndim != 2 or not np.all(np.isfinite(x)) or np.any(x < 0) or np.any(np.round(x) != x):
         raise InputError("symbols", x, "must be an (S, E) array of non-negative whole molecule counts",
                          "round the release counts, or use poisson_transition for mean releases")
@@ -241,8 +277,7 @@ def binomial_transition(symbols, probs, background, tol: float = 1e-10, max_outp
     if n_recv > 3:
         raise InputError("probs", pr.shape, "the exact law is implemented for 1 to 3 receivers",
                          "use poisson_transition (and law_distance on a smaller case to size the error)")
-    if not 0 < tol < 1:
-        raise InputError("tol", tol, "must lie in (0, 1)", "use e.g. 1e-10")
+    tol = _check_tol(tol)
 
     ymax = np.zeros(n_recv, dtype=np.int64)
     for s in range(x.shape[0]):

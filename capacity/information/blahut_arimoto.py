@@ -46,6 +46,7 @@ import numpy as np
 from jax.scipy.special import logsumexp
 from scipy import special
 
+from capacity._inputs import real_array, real_number, whole_number
 from capacity.errors import InputError
 from capacity.information import _ba_kernel as kernel
 from capacity.information.result import CapacityResult
@@ -67,9 +68,9 @@ class _Prepared(NamedTuple):
 
 def _matrix_of(transition) -> tuple[np.ndarray, np.ndarray]:
     if hasattr(transition, "matrix") and hasattr(transition, "truncated_mass"):
-        w = np.asarray(transition.matrix, dtype=float)
+        w = real_array(transition.matrix, "transition", "pass a Transition with a real matrix")
     else:
-        w = np.asarray(transition, dtype=float)
+        w = real_array(transition, "transition", "pass a Transition or a 2-D array with one row per input symbol")
     if w.ndim != 2 or w.shape[0] < 1 or w.shape[1] < 1:
         raise InputError("transition", w.shape, "must be an (S, Y) matrix of probabilities W(y|x)",
                          "pass a Transition or a 2-D array with one row per input symbol")
@@ -82,7 +83,8 @@ def _matrix_of(transition) -> tuple[np.ndarray, np.ndarray]:
                          "each row must sum to at most 1 (and be positive)",
                          "normalise the rows, or pass a Transition whose truncated mass is reported")
     if hasattr(transition, "truncated_mass"):
-        tail = np.clip(np.asarray(transition.truncated_mass, dtype=float), 0.0, 1.0)
+        tail = np.clip(real_array(transition.truncated_mass, "transition.truncated_mass",
+                                  "pass the Transition's own truncated_mass"), 0.0, 1.0)
     else:
         tail = np.clip(1.0 - sums, 0.0, 1.0)
         tail = np.where(tail > 1e-13, tail, 0.0)  # row sums within rounding of 1 count as exact
@@ -133,17 +135,31 @@ def _bucket(n: int, minimum: int) -> int:
 
 
 def _check_cost(cost, n_sym: int) -> np.ndarray:
-    b = np.asarray(cost, dtype=float)
+    b = real_array(cost, "cost", "give one cost (e.g. molecules) per input symbol")
     if b.shape != (n_sym,) or not np.all(np.isfinite(b)) or np.any(b < 0):
         raise InputError("cost", b if b.size < 20 else b.shape, f"must be {n_sym} finite non-negative costs",
                          "give one cost (e.g. molecules) per input symbol")
     return b
 
 
+def _check_settings(tol, max_iter) -> tuple[float, int]:
+    tol = real_number(tol, "tol", "use e.g. 1e-9")
+    if not (0 < tol < 1):
+        raise InputError("tol", tol, "must lie in (0, 1) bits", "use e.g. 1e-9")
+    return tol, whole_number(max_iter, "max_iter", "give a positive whole number of iterations such as 200_000")
+
+
+def _check_budget(budget) -> float:
+    budget = real_number(budget, "budget", "give one mean cost per symbol (a number), e.g. 25")
+    if not math.isfinite(budget):
+        raise InputError("budget", budget, "must be a finite number", "give a mean cost per symbol, e.g. 25")
+    return budget
+
+
 def _start(initial, n_sym: int) -> np.ndarray:
     if initial is None:
         return np.full(n_sym, 1.0 / n_sym)
-    p = np.asarray(initial, dtype=float)
+    p = real_array(initial, "initial", "pass a previous input_distribution or None")
     if p.shape != (n_sym,) or not np.all(np.isfinite(p)) or np.any(p < 0) or p.sum() <= 0:
         raise InputError("initial", p.shape, f"must be {n_sym} non-negative weights with a positive sum",
                          "pass a previous input_distribution or None")
@@ -285,8 +301,7 @@ def blahut_arimoto(transition, cost=None, budget=None, tol: float = 1e-9, max_it
     Returns CapacityResult: capacity (= I(p;W), a certified lower bound), input_distribution, gap,
     mean_cost, iterations, converged, message, slope (bits per cost unit).
     """
-    if not (0 < tol < 1):
-        raise InputError("tol", tol, "must lie in (0, 1) bits", "use e.g. 1e-9")
+    tol, max_iter = _check_settings(tol, max_iter)
     if budget is not None and slope is not None:
         raise InputError("slope", slope, "cannot be combined with budget", "give one of budget or slope")
     prep = _prepare(transition, tol)
@@ -298,7 +313,10 @@ def blahut_arimoto(transition, cost=None, budget=None, tol: float = 1e-9, max_it
     if n_sym == 1:
         return CapacityResult(0.0, np.ones(1), prep.tail_bits, float(b[0]), 0, True,
                               "one input symbol: capacity 0", 0.0)
+    if budget is not None:
+        budget = _check_budget(budget)
     if slope is not None:
+        slope = real_number(slope, "slope", "bits per cost unit, e.g. 0.01")
         if not (np.isfinite(slope) and slope >= 0):
             raise InputError("slope", slope, "must be finite and >= 0", "bits per cost unit, e.g. 0.01")
         point = _run(prep, b, float(slope) * LN2, p0, tol, max_iter)
@@ -318,7 +336,8 @@ def capacity_cost_curve(transition, cost, budgets, tol: float = 1e-9, max_iter: 
     solve is done once; budgets are visited in increasing order, each search starting from the previous
     solution (which brackets the slope from above). Each point is certified as in :func:`blahut_arimoto`.
     """
-    budgets = np.atleast_1d(np.asarray(budgets, dtype=float))
+    tol, max_iter = _check_settings(tol, max_iter)
+    budgets = np.atleast_1d(real_array(budgets, "budgets", "e.g. [10, 50, 100]"))
     if budgets.ndim != 1 or not np.all(np.isfinite(budgets)):
         raise InputError("budgets", budgets, "must be a 1-D array of finite budgets", "e.g. [10, 50, 100]")
     prep = _prepare(transition, tol)
