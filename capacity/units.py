@@ -24,7 +24,7 @@ from __future__ import annotations
 import math
 import numbers
 import re
-from decimal import Decimal, localcontext
+from decimal import Decimal, DecimalException, localcontext
 from functools import lru_cache
 
 from capacity.errors import InputError
@@ -50,6 +50,14 @@ _WHAT = {
 }
 
 _NUMBER = re.compile(r"^\s*([+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?)\s*(.*?)\s*$", re.DOTALL)
+# a unit expression: unit names with optional small integer powers, joined by "*", "/" or spaces, optionally
+# "1/..." or "/..." in front (e.g. "um^2/s", "1/s", "/s", "m^2 s^-1", "m**2/s"); no numbers, brackets or
+# arithmetic, so pint never evaluates anything costly such as "um*9**9**9"
+_UNIT_NAME = r"[^\W\d_]+"
+_UNIT_TERM = _UNIT_NAME + r"(?:\s*(?:\^|\*\*)\s*[+-]?\d{1,2})?"
+_UNIT_EXPRESSION = re.compile(
+    rf"^(?:1\s*/\s*|/\s*)?{_UNIT_TERM}(?:(?:\s*[*/]\s*|\s+){_UNIT_TERM})*$"
+)
 _MOLECULE_WORDS = {"", "molecule", "molecules", "molec", "particle", "particles"}
 
 
@@ -114,7 +122,10 @@ def to_si(value: object, dimension: str, field: str) -> float:
     if isinstance(value, bool) or not isinstance(value, (numbers.Real, str)):
         raise InputError(field, value, f"must be {_WHAT[dimension]}, not a {type(value).__name__}", fix)
     if isinstance(value, numbers.Real):
-        result = float(value)
+        try:
+            result = float(value)
+        except OverflowError:
+            raise InputError(field, value, "is too large: it must be a finite number", fix) from None
     else:
         result = _parse_string(value, dimension, field, fix)
     if not math.isfinite(result):
@@ -130,9 +141,17 @@ def _parse_string(text: str, dimension: str, field: str, fix: str) -> float:
     if dimension == "count":
         if unit_text.lower() not in _MOLECULE_WORDS:
             raise InputError(field, text, f'has the unit "{unit_text}", but a molecule count has none', fix)
-        return float(Decimal(number))
+        return _decimal_to_float(number, None, field, text, fix)
     if not unit_text:
         raise InputError(field, text, "is a string without a unit", fix + "; plain numbers need no quotes")
+    if not _UNIT_EXPRESSION.match(unit_text):
+        raise InputError(
+            field,
+            text,
+            f'has a unit "{unit_text}" that is not a unit expression (unit names with whole powers joined by '
+            '"*", "/" or spaces, such as um^2/s, 1/s or m^2 s^-1; no arithmetic)',
+            fix,
+        )
     try:
         factor = _si_factor(unit_text, dimension)
     except Exception as err:  # noqa: BLE001  (pint raises several unrelated types)
@@ -142,6 +161,16 @@ def _parse_string(text: str, dimension: str, field: str, fix: str) -> float:
         else:
             problem = f'has a unit "{unit_text}" that cannot be read ({name})'
         raise InputError(field, text, problem, fix) from None
-    with localcontext() as ctx:
-        ctx.prec = 60
-        return float(Decimal(number) * factor)
+    return _decimal_to_float(number, factor, field, text, fix)
+
+
+def _decimal_to_float(number: str, factor: Decimal | None, field: str, text: str, fix: str) -> float:
+    """``number * factor`` correctly rounded to a float; exponents beyond the decimal range raise InputError."""
+    try:
+        if factor is None:  # a bare count: exactly as written
+            return float(Decimal(number))
+        with localcontext() as ctx:
+            ctx.prec = 60
+            return float(Decimal(number) * factor)
+    except DecimalException:
+        raise InputError(field, text, "is too large or too small: it must be a finite number", fix) from None

@@ -100,6 +100,17 @@ def load_scenario(path: str | PathLike) -> Scenario:
             f"is not valid TOML: {err}",
             "fix the syntax at that line and column (strings need quotes, tables [name])",
         ) from None
+    except RecursionError:
+        raise InputError(
+            "scenario file", str(path), "is nested too deeply for the TOML reader", "flatten the nested arrays"
+        ) from None
+    except ValueError as err:  # e.g. an integer literal beyond Python's 4300-digit conversion limit
+        raise InputError(
+            "scenario file",
+            str(path),
+            f"holds a value that cannot be read ({err})",
+            "write numbers with at most a few dozen digits, e.g. 1e40 instead of a long integer",
+        ) from None
     return scenario_from_dict(data, source=str(path))
 
 
@@ -225,6 +236,8 @@ def _integer(value, field: str, fix: str) -> int:
     """An int from a TOML integer or an integral float (``2e4``); booleans and fractions are rejected."""
     if isinstance(value, bool) or not isinstance(value, (numbers.Real, str)):
         raise InputError(field, value, "must be an integer", fix)
+    if isinstance(value, numbers.Integral):
+        return int(value)  # exact, however large (the validator checks the range)
     number = to_si(value, "count", field) if isinstance(value, str) else float(value)
     if not math.isfinite(number) or number != math.floor(number):
         raise InputError(field, value, "must be a whole number", fix)
@@ -280,6 +293,9 @@ def _channel(t: dict, n_rx: int) -> Channel:
     tolerance = t.get("memory_tolerance", 0.01)
     if isinstance(tolerance, bool) or not isinstance(tolerance, numbers.Real):
         raise InputError(p + "memory_tolerance", tolerance, "must be a number", "give a fraction such as 0.01")
+    if isinstance(tolerance, numbers.Integral) and abs(tolerance) > 1:
+        raise InputError(p + "memory_tolerance", tolerance, "must lie strictly between 0 and 1",
+                         "give a fraction such as 0.01")
     background = t.get("background", 0.0)
     if isinstance(background, list):
         if len(background) != n_rx:
