@@ -48,6 +48,8 @@ _TWO_OVER_SQRT_PI = 2.0 / math.sqrt(math.pi)
 _SIGMA_SERIES = 1e-3
 #: stand-in for x = d / sqrt(4 D t) at t = 0 (exp(-x^2) underflows to exactly 0)
 _X_AT_ZERO = 1e3
+#: passive sphere: 4 D t (m^2) below which t counts as 0 (the t -> 0+ limit), well above the float64 underflow
+_S2_AT_ZERO = 1e-280
 #: passive tails: explicit terms after lag L before the Euler-Maclaurin remainder; Gauss-Legendre nodes
 PASSIVE_TAIL_TERMS = 1024
 _GL_NODES, _GL_WEIGHTS = np.polynomial.legendre.leggauss(64)
@@ -253,7 +255,9 @@ def passive_probability(t, radius, distance, diffusion, degradation=0.0):
     error below ~1e-15 relative). Dimensionless.
     """
     t, radius, distance, diffusion, degradation = _as_f64(t, radius, distance, diffusion, degradation)
-    pos = t > 0.0
+    # 4 D t below _S2_AT_ZERO (e.g. t = 1e-300 s) counts as t = 0: the spread is then far below any length, the
+    # t -> 0+ limit is exact, and 4 D t would otherwise underflow to 0 (0 * inf = NaN in the closed form)
+    pos = (t > 0.0) & (4.0 * diffusion * t > _S2_AT_ZERO)
     ts = jnp.where(pos, t, 1.0)
     p = _passive_undegraded(ts, radius, distance, diffusion) * jnp.exp(-degradation * ts)
     return jnp.where(pos, p, jnp.where(distance < radius, 1.0, 0.0))

@@ -18,6 +18,7 @@ from capacity.scenario.types import Scenario
 
 __all__ = [
     "COUNTING_LAWS",
+    "LIMITS",
     "MAX_MEMORY",
     "RECEIVER_KINDS",
     "RESIDUAL_RULES",
@@ -35,6 +36,18 @@ RESPONSE_MODELS = ("lone", "shadowed", "particles")
 SCHEMES = ("amplitude", "spatial", "multiplex", "hybrid")
 #: hard cap on the number of lags kept exactly (memory = L keeps L + 1 slots)
 MAX_MEMORY = 2000
+#: physically meaningful magnitudes (SI); outside them the closed forms overflow or lose all meaning.
+#: length: largest |coordinate| and radius, m; diffusion: (smallest, largest) m^2/s (solids ~1e-20 .. gases
+#: ~1e-5); degradation: (0, largest) 1/s (a lifetime of 1 ps); seed: numpy/JAX 64-bit seeds; particles and levels:
+#: more than any simulation or alphabet could use
+LIMITS = {
+    "length": 1e3,
+    "diffusion": (1e-30, 1.0),
+    "degradation": (0.0, 1e12),
+    "seed": 2**63 - 1,
+    "particles": 10**9,
+    "levels": 10**4,
+}
 
 # thresholds of geometry_warnings (fractions of a radius, of a slot, ...)
 _NEAR_SURFACE = 0.1
@@ -74,9 +87,20 @@ def _is_int(x) -> bool:
 
 
 def _finite(field, value, fix):
-    if isinstance(value, bool) or not isinstance(value, numbers.Real) or not math.isfinite(float(value)):
+    if isinstance(value, bool) or not isinstance(value, numbers.Real):
         raise InputError(field, value, "must be a finite number", fix)
-    return float(value)
+    try:
+        number = float(value)
+    except OverflowError:  # an int beyond the float range
+        number = math.inf
+    if not math.isfinite(number):
+        raise InputError(field, value, "must be a finite number", fix)
+    return number
+
+
+def _at_most(field, value, limit, what, fix):
+    if abs(float(value)) > limit:
+        raise InputError(field, value, f"is beyond {limit:g} {what}, outside any meaningful layout", fix)
 
 
 def _positive(field, value, fix):
@@ -94,6 +118,10 @@ def _point(field, value, fix):
         raise InputError(field, value, "must be a list of 3 coordinates [x, y, z]", fix)
     for k, c in enumerate(value):
         _finite(f"{field}[{k}]", c, fix)
+    limit = LIMITS["length"]
+    if any(abs(float(c)) > limit for c in value):
+        raise InputError(field, value, f"has a coordinate beyond {limit:g} m, outside any meaningful layout",
+                         f"give coordinates within +-{limit:g} m (check the units: plain numbers are metres)")
 
 
 def _choice(field, value, allowed):
@@ -159,6 +187,16 @@ def _check_medium(s: Scenario) -> None:
     _non_negative(
         "medium.degradation", s.medium.degradation, 'give a rate >= 0 such as "0.5 /s", or 0 for a stable molecule'
     )
+    lo, hi = LIMITS["diffusion"]
+    if not lo <= s.medium.diffusion <= hi:
+        raise InputError(
+            "medium.diffusion",
+            s.medium.diffusion,
+            f"lies outside [{lo:g}, {hi:g}] m^2/s, the range of any diffusing molecule",
+            'give a diffusion coefficient such as "79.4 um^2/s" or 7.94e-11 (m^2/s); check the units',
+        )
+    _at_most("medium.degradation", s.medium.degradation, LIMITS["degradation"][1], "1/s (a lifetime below 1 ps)",
+             'give a rate such as "0.5 /s", or 0 for a stable molecule; check the units')
 
 
 def _check_emitters_receivers(s: Scenario) -> None:
@@ -174,6 +212,8 @@ def _check_emitters_receivers(s: Scenario) -> None:
         f = f"receiver[{j}]"
         _point(f"{f}.centre", r.centre, pos_fix)
         _positive(f"{f}.radius", r.radius, 'give a positive radius such as "5 um" or 5e-6 (metres)')
+        _at_most(f"{f}.radius", r.radius, LIMITS["length"], "m",
+                 'give a radius such as "5 um" or 5e-6 (metres); check the units')
         _choice(f"{f}.kind", r.kind, RECEIVER_KINDS)
         if r.sample_offset is None:
             continue
@@ -233,11 +273,11 @@ def _check_channel(s: Scenario) -> None:
     _choice("channel.counting", c.counting, COUNTING_LAWS)
     _choice("channel.residual", c.residual, RESIDUAL_RULES)
     _choice("channel.response", c.response, RESPONSE_MODELS)
-    if not _is_int(c.particles) or c.particles <= 0:
+    if not _is_int(c.particles) or not 0 < c.particles <= LIMITS["particles"]:
         raise InputError(
             "channel.particles",
             c.particles,
-            "must be a positive integer",
+            f"must be a positive integer up to {LIMITS['particles']:g}",
             "give a number of molecules to simulate such as 20000",
         )
     if c.time_step is not None:
@@ -251,6 +291,8 @@ def _check_channel(s: Scenario) -> None:
             )
     if not _is_int(c.seed) or c.seed < 0:
         raise InputError("channel.seed", c.seed, "must be a non-negative integer", "give a seed such as 0")
+    if c.seed > LIMITS["seed"]:
+        raise InputError("channel.seed", c.seed, "is above 2^63 - 1, the largest seed", "give a seed such as 0")
 
 
 def _check_signalling(s: Scenario) -> None:
@@ -264,6 +306,13 @@ def _check_signalling(s: Scenario) -> None:
             g.levels,
             "must be an integer >= 2 (levels include 0)",
             "give 2 for on-off keying, or more levels",
+        )
+    if g.levels > LIMITS["levels"]:
+        raise InputError(
+            "signalling.levels",
+            g.levels,
+            f"is above {LIMITS['levels']}, more levels than any alphabet can use",
+            "give 2 for on-off keying, or a few more levels",
         )
     _positive("signalling.peak", g.peak, "give the largest release per emitter and slot, e.g. 1000 (molecules)")
     n_em = len(s.emitters)
