@@ -123,7 +123,7 @@ def test_isi_as_noise_value_and_gradient():
 def test_envelope_with_mean_interference_gradient_at_fixed_law():
     # With ISI as mean interference the law enters the channel; the gradient is exact with the law frozen.
     problem = build_problem(scenario(memory=3, residual="interference"), ("symbol_interval", "gap"),
-                            "bits-per-second")
+                            "bits-per-second", rate="mean-isi")
     obj = Objective(problem)
     u = unconstrain(problem.space, base_physical(problem.space))
     ev = obj.evaluate(u, grad=True)

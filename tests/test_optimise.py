@@ -154,7 +154,7 @@ def test_levels_and_split_match_grid_search():
     res = optimise_design(sc, ("levels",), "bits-per-symbol", rate="mean-isi",
                           starts=2, steps=60, progress=False,
                           do_polish=False)
-    problem = build_problem(sc, ("levels",), "bits-per-symbol")
+    problem = build_problem(sc, ("levels",), "bits-per-symbol", rate="mean-isi")
     obj = Objective(problem)
     axis = np.linspace(5.0, 99.0, 25)
     vals = [obj.evaluate(unconstrain(problem.space, {"levels": np.array([a, b])})).value
@@ -169,7 +169,7 @@ def test_levels_and_split_match_grid_search():
 
 
 def grid_search_split(sc):
-    problem = build_problem(sc, ("split",), "bits-per-second")
+    problem = build_problem(sc, ("split",), "bits-per-second", rate="mean-isi")
     obj = Objective(problem)
     w = np.linspace(0.02, 0.98, 49)
     vals = [obj.evaluate(unconstrain(problem.space, {"split": np.array([a, 1 - a])})).value for a in w]
