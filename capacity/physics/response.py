@@ -7,6 +7,11 @@ Models (a small table, name -> function; each is imported only when used):
   from each other), lone closed forms for the passive ones (a passive sphere does not perturb the field);
 * ``particles`` -- :func:`capacity.physics.particles.simulate_hits`, Brownian simulation of the whole layout.
 
+Every response is checked before it is returned (:func:`broken_invariants`): probabilities in [0, 1], capture
+totals <= 1 (per receiver, and for the shadowing models over all receivers). Where the shadowed model breaks
+them (an emitter very close to a bead) the particle simulator is used instead, with a note; any other breach
+raises :class:`InputError` naming the layout and the invariant. Round-off below :data:`ROUND_OFF` is clipped.
+
 Memory ``"auto"``: the smallest L such that, for every emitter-receiver pair, every slot after L has a hit
 probability of at most ``memory_tolerance`` times the pair's largest slot. It is decided from the ``lone`` model
 (cheap) with up to :data:`MEMORY_CAP` lags, whichever model then computes the response; lone responses are
@@ -201,6 +206,35 @@ def _particles(lay: Layout, memory: int, options: dict, lone):
 
 
 MODELS = {"lone": _lone, "shadowed": _shadowed, "particles": _particles}
+#: slack for round-off in the invariants a response must hold
+ROUND_OFF = 1e-9
+
+
+def _shared_totals(hits, tail, passive) -> np.ndarray:
+    """(E,) share of each emitter's molecules captured by all absorbing receivers together."""
+    return (hits.sum(axis=-1) + tail)[:, ~passive].sum(axis=1)
+
+
+def broken_invariants(hits, tail, passive, *, shared: bool) -> list[str]:
+    """What a response breaks, beyond round-off: finite values, slot probabilities in [0, 1], non-negative tails,
+    each absorbing pair's total capture <= 1, and (``shared``: models in which receivers shadow each other) all
+    absorbing receivers together <= 1 per emitter. Empty when everything holds."""
+    hits, tail = np.asarray(hits, dtype=float), np.asarray(tail, dtype=float)
+    if not (np.all(np.isfinite(hits)) and np.all(np.isfinite(tail))):
+        return ["non-finite hit probabilities"]
+    out = []
+    if hits.min() < -ROUND_OFF:
+        out.append(f"a slot probability {hits.min():.3g} < 0")
+    if hits.max() > 1.0 + ROUND_OFF:
+        out.append(f"a slot probability {hits.max():.3g} > 1")
+    if tail.min() < -ROUND_OFF:
+        out.append(f"a tail {tail.min():.3g} < 0")
+    totals = (hits.sum(axis=-1) + tail)[:, ~passive]
+    if totals.size and totals.max() > 1.0 + ROUND_OFF:
+        out.append(f"a receiver capturing {totals.max():.4g} > 1 of an emitter's molecules")
+    if shared and totals.size and _shared_totals(hits, tail, passive).max() > 1.0 + ROUND_OFF:
+        out.append(f"receivers together capturing {_shared_totals(hits, tail, passive).max():.4g} > 1")
+    return out
 
 
 def channel_response(scenario, model=None, *, memory=None, particles=None, seed=None, time_step=None,
@@ -248,6 +282,30 @@ def channel_response(scenario, model=None, *, memory=None, particles=None, seed=
                "time_step": ch.time_step if time_step is None else time_step,
                "progress": progress}
     hits, tail, stderr, model_notes = MODELS[name](lay, lags, options, lone)
+    problems = broken_invariants(hits, tail, lay.passive, shared=name != "lone")
+    if problems and name == "shadowed":
+        model_notes = [f"the shadowed model broke {'; '.join(problems)} on this layout: switched to the particle "
+                       f"simulator, which holds them by construction"]
+        fallback = dict(options)
+        if options["time_step"] is None and particle_step_count(lay, lags, None) > PARTICLE_STEP_LIMIT:
+            # the automatic step near a very close emitter is tiny; the exact radial crossing correction keeps
+            # coarser steps accurate (tests/test_particles.py), so cap the number of steps instead of refusing
+            fallback["time_step"] = (lags + 1) * lay.symbol_interval / PARTICLE_STEP_LIMIT
+        hits, tail, stderr, more = _particles(lay, lags, fallback, lone)
+        model_notes += more
+        name = "particles"
+        problems = broken_invariants(hits, tail, lay.passive, shared=True)
+    if problems:
+        raise InputError("layout", scenario.name, f"the {name} response model gives {'; '.join(problems)}",
+                         "move emitters further from the receivers, or use channel.response = 'particles'")
+    hits, tail = np.clip(hits, 0.0, None), np.clip(tail, 0.0, None)  # round-off below ROUND_OFF only
+    if name == "lone":
+        over = _shared_totals(hits, tail, lay.passive)
+        if over.max() > 1.0 + ROUND_OFF:
+            i = int(np.argmax(over))
+            model_notes.append(f"the lone model lets the absorbing receivers together capture {over[i]:.3g} > 1 "
+                               f"of {lay.emitter_names[i]}'s molecules (it ignores that they shadow each other): "
+                               "use the shadowed or particles model for this layout")
     i, j = np.unravel_index(int(np.argmax(tail)), tail.shape)
     notes.append(f"largest tail mass beyond lag {lags}: {tail[i, j]:.3g} ({lay.emitter_names[i]} -> "
                  f"{lay.receiver_names[j]})")
