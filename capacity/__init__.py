@@ -1,6 +1,7 @@
 """capacity: how much information a diffusion-based molecular communication layout can carry.
 
-Importing the package switches JAX to float64. All quantities are SI inside; information is in bits.
+Using the package switches JAX to float64 (names are imported on first use). All quantities are SI inside;
+information is in bits.
 
 Scenario (``capacity.scenario``)
     Scenario, Medium, Emitter, Receiver, Channel, Signalling — immutable dataclasses (SI units)
@@ -23,30 +24,72 @@ Design (``capacity.design``)
     optimise_design(scenario, tune, objective) -> DesignResult
 """
 
-from capacity import _jax  # noqa: F401  (float64 everywhere)
-from capacity.channel.transition import Transition, binomial_transition, poisson_transition, symbol_means
-from capacity.compare import budget_sweep, compare_schemes
-from capacity.design.optimise import DesignResult, optimise_design
-from capacity.errors import InputError
-from capacity.information.blahut_arimoto import blahut_arimoto, capacity_cost_curve, mutual_information
-from capacity.information.bounds import isi_bounds
-from capacity.information.markov import markov_rate
-from capacity.information.montecarlo import mc_mutual_information
-from capacity.information.result import CapacityResult, RateResult
-from capacity.information.trellis import information_rate
-from capacity.information.unit_cost import capacity_per_unit_cost
-from capacity.physics.lone import lone_hits
-from capacity.physics.particles import simulate_hits
-from capacity.physics.response import channel_response
-from capacity.physics.result import ChannelResponse
-from capacity.physics.shadowed import shadowed_hits
-from capacity.rates import LinkRates, link_rates
-from capacity.scenario.load import load_scenario, scenario_from_dict
-from capacity.scenario.summary import summarise
-from capacity.scenario.types import Channel, Emitter, Medium, Receiver, Scenario, Signalling
-from capacity.schemes.alphabet import Alphabet
-from capacity.schemes.builders import build_alphabet
-from capacity.schemes.detectors import DETECTORS, detector_performance
+import os as _os
+
+# float64 everywhere: JAX reads this when it is first imported (every module that uses JAX also imports
+# capacity._jax, which switches it on explicitly in case JAX was imported before this package)
+_os.environ.setdefault("JAX_ENABLE_X64", "1")
+
+# public name -> module; imported on first use, so that the command line's --help and argument errors do not
+# wait for JAX (PEP 562 module __getattr__)
+_LAZY = {
+    "Transition": "capacity.channel.transition",
+    "binomial_transition": "capacity.channel.transition",
+    "poisson_transition": "capacity.channel.transition",
+    "symbol_means": "capacity.channel.transition",
+    "budget_sweep": "capacity.compare",
+    "compare_schemes": "capacity.compare",
+    "DesignResult": "capacity.design.optimise",
+    "optimise_design": "capacity.design.optimise",
+    "InputError": "capacity.errors",
+    "blahut_arimoto": "capacity.information.blahut_arimoto",
+    "capacity_cost_curve": "capacity.information.blahut_arimoto",
+    "mutual_information": "capacity.information.blahut_arimoto",
+    "isi_bounds": "capacity.information.bounds",
+    "markov_rate": "capacity.information.markov",
+    "mc_mutual_information": "capacity.information.montecarlo",
+    "CapacityResult": "capacity.information.result",
+    "RateResult": "capacity.information.result",
+    "information_rate": "capacity.information.trellis",
+    "capacity_per_unit_cost": "capacity.information.unit_cost",
+    "lone_hits": "capacity.physics.lone",
+    "simulate_hits": "capacity.physics.particles",
+    "channel_response": "capacity.physics.response",
+    "ChannelResponse": "capacity.physics.result",
+    "shadowed_hits": "capacity.physics.shadowed",
+    "LinkRates": "capacity.rates",
+    "link_rates": "capacity.rates",
+    "load_scenario": "capacity.scenario.load",
+    "scenario_from_dict": "capacity.scenario.load",
+    "summarise": "capacity.scenario.summary",
+    "Channel": "capacity.scenario.types",
+    "Emitter": "capacity.scenario.types",
+    "Medium": "capacity.scenario.types",
+    "Receiver": "capacity.scenario.types",
+    "Scenario": "capacity.scenario.types",
+    "Signalling": "capacity.scenario.types",
+    "Alphabet": "capacity.schemes.alphabet",
+    "build_alphabet": "capacity.schemes.builders",
+    "DETECTORS": "capacity.schemes.detectors",
+    "detector_performance": "capacity.schemes.detectors",
+}
+
+
+def __getattr__(name):
+    if name in _LAZY:
+        import importlib
+
+        from capacity import _jax  # noqa: F401  (float64)
+
+        value = getattr(importlib.import_module(_LAZY[name]), name)
+        globals()[name] = value
+        return value
+    raise AttributeError(f"module 'capacity' has no attribute {name!r}")
+
+
+def __dir__():
+    return sorted(set(globals()) | set(_LAZY))
+
 
 __all__ = [
     "DETECTORS", "Alphabet", "CapacityResult", "Channel", "ChannelResponse", "DesignResult", "Emitter",

@@ -27,6 +27,7 @@ import numpy as np
 from jax.scipy.special import gammaln
 from scipy import special, stats
 
+from capacity import _jax  # noqa: F401  (float64)
 from capacity._inputs import real_array, real_number, whole_number
 from capacity.errors import InputError
 

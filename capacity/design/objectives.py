@@ -59,6 +59,7 @@ import numpy as np
 from jax.scipy.special import gammaln, logsumexp, xlogy
 from scipy import stats
 
+from capacity import _jax  # noqa: F401  (float64)
 from capacity.design.params import DesignSpace, Layout, constrain, feasible, layout
 from capacity.errors import InputError
 from capacity.information.blahut_arimoto import mutual_information

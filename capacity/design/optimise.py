@@ -29,6 +29,7 @@ import jax.numpy as jnp
 import numpy as np
 import optax
 
+from capacity import _jax  # noqa: F401  (float64)
 from capacity.design.objectives import (
     OBJECTIVES,
     Objective,

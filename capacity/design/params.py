@@ -44,6 +44,7 @@ import jax
 import jax.numpy as jnp
 import numpy as np
 
+from capacity import _jax  # noqa: F401  (float64)
 from capacity.errors import InputError
 
 TUNABLES = ("symbol_interval", "levels", "split", "gap", "spacing", "radius")

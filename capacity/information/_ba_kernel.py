@@ -26,6 +26,8 @@ import jax.numpy as jnp
 from jax import lax
 from jax.scipy.special import logsumexp
 
+from capacity import _jax  # noqa: F401  (float64)
+
 TINY = 1e-300
 _MAX_PASSES = 16  # active-set passes per Newton step (entries still negative after them are clipped)
 _FLOOR = 1e-300  # Blahut–Arimoto step: p is floored here so an input dropped by Newton can come back

@@ -46,6 +46,7 @@ import numpy as np
 from jax.scipy.special import logsumexp
 from scipy import special
 
+from capacity import _jax  # noqa: F401  (float64)
 from capacity._inputs import real_array, real_number, whole_number
 from capacity.errors import InputError
 from capacity.information import _ba_kernel as kernel

@@ -22,6 +22,7 @@ import jax
 import jax.numpy as jnp
 import numpy as np
 
+from capacity import _jax  # noqa: F401  (float64)
 from capacity.errors import InputError
 from capacity.information.window import LN2, auto_window, chunk_size, draw, surrogate  # noqa: F401
 

@@ -30,6 +30,7 @@ import numpy as np
 from jax import lax
 from jax.scipy.special import logsumexp, xlogy
 
+from capacity import _jax  # noqa: F401  (float64)
 from capacity.errors import InputError
 from capacity.information.result import RateResult
 from capacity.information.trellis import (

@@ -17,6 +17,7 @@ import jax
 import numpy as np
 from scipy.special import logsumexp, xlogy
 
+from capacity import _jax  # noqa: F401  (float64)
 from capacity.errors import InputError
 from capacity.information.result import RateResult
 from capacity.information.trellis import poisson_counts

@@ -32,6 +32,7 @@ import scipy.sparse.linalg as spla
 from jax import lax
 from jax.scipy.special import logsumexp, xlogy
 
+from capacity import _jax  # noqa: F401  (float64)
 from capacity.errors import InputError
 from capacity.information.result import RateResult
 

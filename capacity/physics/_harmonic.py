@@ -15,6 +15,8 @@ from __future__ import annotations
 import jax.numpy as jnp
 import numpy as np
 
+from capacity import _jax  # noqa: F401  (float64)
+
 
 def _frame(axis):
     """Two unit vectors orthogonal to unit ``axis`` (and to each other).

@@ -31,6 +31,7 @@ import jax
 import jax.numpy as jnp
 import numpy as np
 
+from capacity import _jax  # noqa: F401  (float64)
 from capacity.physics._harmonic import landing_nodes
 
 

@@ -44,6 +44,8 @@ import jax.numpy as jnp
 import numpy as np
 from jax import lax
 
+from capacity import _jax  # noqa: F401  (float64)
+
 CORRECTIONS = ("radial", "planar", "none")
 
 

@@ -23,6 +23,7 @@ import jax
 import jax.numpy as jnp
 import numpy as np
 
+from capacity import _jax  # noqa: F401  (float64)
 from capacity.errors import InputError
 from capacity.schemes.detectors.problem import DetectionProblem, check_counts, lag_means
 from capacity.schemes.detectors.symbol_ml import symbol_ml
