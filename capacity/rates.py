@@ -184,6 +184,7 @@ def link_rates(
     window_samples: int = 4096,
     optimise_law: bool = True,
     candidate_laws: dict | None = None,
+    stage=None,
 ) -> LinkRates:
     """All rates of a link.
 
@@ -201,6 +202,7 @@ def link_rates(
     optimise_law : when no ``iid_input`` is given and there is memory, also try the i.i.d. law optimised for the
         rate with ISI (:func:`capacity.information.iid_law.optimise_iid_law`) and keep the better one.
     candidate_laws : name -> (S,) further laws to try (those over the budget are skipped).
+    stage : optional callable, called with a short name as each long stage starts (progress display).
 
     The reported ``information_rate`` is the forward-recursion estimate when the trellis keeps every lag, else
     the larger of its reduced-state lower bound and the windowed bound; ``lower_bound``/``upper_bound`` are the
@@ -221,6 +223,8 @@ def link_rates(
     cost = alphabet.cost
     notes = []
 
+    stage = stage or (lambda name: None)
+    stage("release-slot capacity")
     means0 = np.asarray(symbol_means(hits, background, symbols))
     transition = poisson_transition(means0)
     isi_free = blahut_arimoto(transition, cost=cost if budget is not None else None, budget=budget, tol=tol)
@@ -247,6 +251,7 @@ def link_rates(
     tail = np.asarray(response.tail, dtype=float)
     use_tail = scenario.channel.residual == "interference"
     L = hits.shape[2] - 1
+    stage("input law")
     search = optimise_law and iid_input is None
     if L > 0 and (search or candidate_laws):
         law, law_choice, law_note = _choose_law(hits, background, symbols, cost, budget, law, law_choice,
@@ -260,11 +265,13 @@ def link_rates(
         interference = np.zeros(hits.shape[1])
         notes.append("mass beyond the kept lags dropped (channel.residual = 'drop')")
 
+    stage("trellis rate")
     tr = trellis_rates(hits, background, symbols, law, interference=interference, n_symbols=n_symbols,
                        n_runs=n_runs, seed=seed, max_states=max_states)
     trellis = _trellis_result(tr, n_symbols, seed)
     k = tr["upper"].size
     aux_upper = (float(tr["upper"].mean()), float(tr["upper"].std(ddof=1) / np.sqrt(k)))
+    stage("bounds")
     window = window_bound(hits, background, symbols, law, interference=interference, n_samples=window_samples,
                           seed=seed + 3) if L > 0 else None
     bounds = isi_bounds(hits, background, symbols, law, interference=interference, n_samples=bound_samples,

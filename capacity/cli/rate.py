@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import sys
+
 import numpy as np
 
 from capacity.cli._common import SAFETY, add_scenario_argument, dump_json, fmt, load
@@ -10,13 +12,15 @@ from capacity.cli._common import SAFETY, add_scenario_argument, dump_json, fmt, 
 def add_parser(sub) -> None:
     p = sub.add_parser(
         "rate",
-        help="ISI-free capacity, information rate with ISI, and bounds, per symbol, second and molecule",
+        help="rate with ISI and its bracket, release-slot capacity, per symbol, second and molecule",
         description=(
-            "For the scenario's signalling scheme: the ISI-free capacity at the molecule budget (Blahut-Arimoto, "
-            "with its certified gap and optimal input law), the information rate with ISI for i.i.d. inputs "
-            "(forward recursion over the ISI trellis, with a standard error), and the single-letter bounds "
-            "(ISI as noise <= decision-feedback genie <= i.i.d. rate <= matched-filter genie); each in bits per "
-            "symbol, per second and per molecule."
+            "For the scenario's signalling scheme: the information rate with ISI at the better of two i.i.d. input "
+            "laws (the release-slot optimum, and one optimised for the channel with ISI), with its standard error "
+            "and its bracket (the tightest lower and upper bounds computed, each named: forward recursion over the "
+            "ISI trellis or its reduced-state bound, a windowed decision-feedback bound that counts late "
+            "arrivals, the auxiliary-channel and matched-filter upper bounds); the release-slot capacity at the "
+            "molecule budget (Blahut-Arimoto with its certified gap); each in bits per symbol, per second and per "
+            "molecule. Progress goes to stderr when it is a terminal (--quiet turns it off)."
         ),
     )
     add_scenario_argument(p)
@@ -31,21 +35,45 @@ def add_parser(sub) -> None:
                    help="also optimise a Markov input law over the ISI trellis (generalised Blahut-Arimoto; only "
                         "where S^L <= 256 states)")
     p.add_argument("--json", action="store_true", help="print JSON")
+    p.add_argument("--quiet", action="store_true", help="no progress on stderr")
     p.set_defaults(func=run)
 
 
-def compute(scenario, *, model=None, budget=None, n_symbols=20_000, n_runs=8, seed=None):
-    """Response, alphabet and rates of one scenario; returns (response, alphabet, LinkRates)."""
+def compute(scenario, *, model=None, budget=None, n_symbols=20_000, n_runs=8, seed=None, progress=False):
+    """Response, alphabet and rates of one scenario; returns (response, alphabet, LinkRates).
+
+    progress: show the stages on stderr (tqdm), when stderr is a terminal."""
     from capacity.physics.response import channel_response
     from capacity.rates import link_rates
     from capacity.schemes.builders import build_alphabet
 
-    if budget is not None:
-        scenario = scenario.with_signalling(budget=budget)
-    response = channel_response(scenario, model, seed=seed)
-    alphabet = build_alphabet(scenario.signalling, len(scenario.emitters))
-    rates = link_rates(scenario, response, alphabet, n_symbols=n_symbols, n_runs=n_runs, seed=seed)
+    bar = None
+    if progress and sys.stderr.isatty():
+        from tqdm.auto import tqdm
+
+        bar = tqdm(total=len(STAGES), desc="rate", unit="stage", leave=False, file=sys.stderr)
+
+    def stage(name):
+        if bar is not None:
+            bar.set_postfix_str(name)
+            bar.update(1)
+
+    try:
+        if budget is not None:
+            scenario = scenario.with_signalling(budget=budget)
+        stage("channel response")
+        response = channel_response(scenario, model, seed=seed)
+        alphabet = build_alphabet(scenario.signalling, len(scenario.emitters))
+        rates = link_rates(scenario, response, alphabet, n_symbols=n_symbols, n_runs=n_runs, seed=seed,
+                           stage=stage)
+    finally:
+        if bar is not None:
+            bar.close()
     return response, alphabet, rates
+
+
+#: what `compute` reports progress on, in order (link_rates announces the last four)
+STAGES = ("channel response", "release-slot capacity", "input law", "trellis rate", "bounds")
 
 
 def rate_record(scenario, response, rates) -> dict:
@@ -150,7 +178,7 @@ def run(args) -> int:
     if args.markov:
         check_markov(scenario)
     response, _, rates = compute(scenario, model=args.model, n_symbols=args.symbols, n_runs=args.runs,
-                                 seed=args.seed)
+                                 seed=args.seed, progress=not (args.quiet or args.json))
     record = rate_record(scenario, response, rates)
     text = format_rates(scenario, response, rates)
     if args.markov:
