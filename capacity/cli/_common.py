@@ -25,15 +25,15 @@ def add_scenario_argument(parser) -> None:
 
 def demo_path() -> Path:
     """Path of the built-in demo scenario file."""
-    return Path(__file__).resolve().parent.parent / "data" / "demo.toml"
+    from capacity.scenario.load import builtin_path
+
+    return builtin_path("demo")
 
 
 def load(path_or_demo: str):
-    """Load a scenario file, or the built-in demo for the word ``demo``."""
+    """Load a scenario file, or the built-in demo for the word ``demo`` (as :func:`capacity.load_scenario`)."""
     from capacity.scenario.load import load_scenario
 
-    if path_or_demo == "demo":
-        return load_scenario(demo_path())
     return load_scenario(path_or_demo)
 
 

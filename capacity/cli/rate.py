@@ -153,21 +153,19 @@ def markov_record(scenario, response, rates, *, n_symbols, seed) -> dict:
             "bits_per_second": result.rate / rates.symbol_interval, "transition_law": law}
 
 
-MARKOV_MAX_STATES = 256  # the default state limit of capacity.information.markov.markov_rate
-
-
 def check_markov(scenario) -> None:
     """Refuse ``--markov`` up front (before any long computation) when the source's trellis is too large."""
     from capacity.errors import InputError
+    from capacity.information.markov import MAX_STATES
     from capacity.schemes.builders import build_alphabet
 
     memory = scenario.channel.memory
     if not isinstance(memory, int):
         return  # "auto": known only after the response; markov_record names the limit then
     n_sym = build_alphabet(scenario.signalling, len(scenario.emitters)).size
-    if n_sym ** memory > MARKOV_MAX_STATES:
+    if n_sym ** memory > MAX_STATES:
         raise InputError("--markov", "requested", f"a Markov source over {memory} lags of {n_sym} symbols has "
-                         f"{n_sym}^{memory} = {n_sym ** memory} states > {MARKOV_MAX_STATES}",
+                         f"{n_sym}^{memory} = {n_sym ** memory} states > {MAX_STATES}",
                          "drop --markov, or shorten channel.memory, or use fewer symbols (levels)")
 
 

@@ -24,17 +24,17 @@ import numpy as np
 
 from capacity import _jax  # noqa: F401  (float64)
 from capacity.errors import InputError
-from capacity.information.window import LN2, auto_window, chunk_size, draw, surrogate  # noqa: F401
+from capacity.information.window import auto_window, chunk_size, draw, surrogate
 
 LAW_FLOOR = 1e-9
 
 
 class LawResult(NamedTuple):
-    """law (S,), estimate of I_win at it (bits/symbol) and its standard error, mean cost, iterations, history."""
+    """law (S,), the search's estimate of I_win at it (bits/symbol; callers re-estimate it on their own draws),
+    mean cost, iterations, history of estimates."""
 
     law: np.ndarray
     rate: float
-    stderr: float
     mean_cost: float
     iterations: int
     history: list
@@ -132,4 +132,4 @@ def optimise_iid_law(hits, base, symbols, cost, budget, init_law, *, tail=None, 
             eta *= 0.5
             if eta < 1e-3:
                 break
-    return LawResult(best_p, best_v, float("nan"), float(best_p @ cost), len(history) - 1, history)
+    return LawResult(best_p, best_v, float(best_p @ cost), len(history) - 1, history)

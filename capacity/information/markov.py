@@ -42,6 +42,9 @@ from capacity.information.trellis import (
     stationary,
 )
 
+#: default largest number of source states S^order
+MAX_STATES = 256
+
 
 def successors(N: int, S: int) -> np.ndarray:
     """(N, S) next state of every branch of the shift-register trellis with N = S^M states."""
@@ -101,7 +104,7 @@ def _mean_cost(q, b):
 
 
 def markov_rate(hits, background, symbols, *, order=None, interference=None, n_symbols: int = 10_000,
-                n_iter: int = 30, seed: int = 0, cost=None, budget=None, max_states: int = 256,
+                n_iter: int = 30, seed: int = 0, cost=None, budget=None, max_states: int = MAX_STATES,
                 n_runs: int = 8, final_symbols: int | None = None) -> tuple[RateResult, np.ndarray]:
     """Rate (bits/symbol) of an optimised Markov source and its transition law (S^order, S).
 

@@ -66,6 +66,13 @@ _SIGNALLING = ("scheme", "levels", "peak", "budget", "emitter", "silent", "ampli
 BUILTIN = {"demo": "demo.toml"}
 
 
+def builtin_path(name: str):
+    """Path of the built-in scenario file ``name`` (a key of :data:`BUILTIN`)."""
+    from pathlib import Path
+
+    return Path(__file__).resolve().parent.parent / "data" / BUILTIN[name]
+
+
 def load_scenario(path: str | PathLike) -> Scenario:
     """Read a TOML scenario file, or a built-in one by name (``"demo"``), and return the validated
     :class:`Scenario` (SI units).
@@ -74,9 +81,7 @@ def load_scenario(path: str | PathLike) -> Scenario:
     given), or describes an invalid scenario.
     """
     if isinstance(path, str) and path in BUILTIN:
-        from pathlib import Path
-
-        path = Path(__file__).resolve().parent.parent / "data" / BUILTIN[path]
+        path = builtin_path(path)
     try:
         with open(path, "rb") as fh:
             raw = fh.read()
