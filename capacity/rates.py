@@ -212,7 +212,7 @@ def link_rates(
     from capacity.channel.transition import poisson_transition, symbol_means
     from capacity.information.blahut_arimoto import blahut_arimoto
     from capacity.information.bounds import isi_bounds
-    from capacity.information.trellis import trellis_rates
+    from capacity.information.trellis import rate_result, trellis_rates
     from capacity.information.window import window_bound
 
     budget = scenario.signalling.budget if budget is None else budget
@@ -268,7 +268,7 @@ def link_rates(
     stage("trellis rate")
     tr = trellis_rates(hits, background, symbols, law, interference=interference, n_symbols=n_symbols,
                        n_runs=n_runs, seed=seed, max_states=max_states)
-    trellis = _trellis_result(tr, n_symbols, seed)
+    trellis = rate_result(tr, n_symbols, seed)
     k = tr["upper"].size
     aux_upper = (float(tr["upper"].mean()), float(tr["upper"].std(ddof=1) / np.sqrt(k)))
     stage("bounds")
@@ -287,21 +287,6 @@ def link_rates(
                     law_choice)
     note = out.bracket_note()
     return out._replace(notes=out.notes + (note,)) if note else out
-
-
-def _trellis_result(tr: dict, n_symbols: int, seed: int) -> RateResult:
-    """RateResult of the forward recursion (exact state) or of its reduced-state lower bound."""
-    lo = tr["lower"]
-    k = lo.size
-    se = float(lo.std(ddof=1) / np.sqrt(k))
-    if tr["exact"]:
-        return RateResult(float(lo.mean()), se, "forward recursion (exact state)", int(n_symbols) * k, int(seed),
-                          f"{tr['states']} trellis states, memory L={tr['memory']}; standard error from the "
-                          f"spread of {k} independent runs of {n_symbols} symbols")
-    return RateResult(float(lo.mean()), se, f"reduced-state trellis lower bound (keeps {tr['kept']} of "
-                      f"{tr['memory']} lags)", int(n_symbols) * k, int(seed),
-                      f"auxiliary channel keeps {tr['kept']} of {tr['memory']} lags exactly ({tr['states']} "
-                      "states), the rest as mean interference; outputs simulated from the full channel")
 
 
 def _choose_law(hits, background, symbols, cost, budget, law, law_choice, tail, candidate_laws, optimise_law,

@@ -157,7 +157,7 @@ def test_reduced_state_is_below_full_state_with_common_outputs():
         up = red["upper"] - full["lower"]
         assert up.mean() > -3 * up.std(ddof=1) / np.sqrt(up.size)
     r = information_rate(hits, [0.2], SYM, P, max_states=2, **kw)
-    assert r.method == "reduced-state lower bound (L'=1)"
+    assert r.method == "reduced-state trellis lower bound (keeps 1 of 2 lags)"
 
 
 def test_markov_input_with_identical_rows_equals_iid():

@@ -380,6 +380,12 @@ def information_rate(hits, background, symbols, input_law, *, interference=None,
     """
     r = trellis_rates(hits, background, symbols, input_law, interference=interference, n_symbols=n_symbols,
                       n_runs=n_runs, seed=seed, max_states=max_states, kept_lags=kept_lags)
+    return rate_result(r, n_symbols, seed)
+
+
+def rate_result(r: dict, n_symbols: int, seed: int) -> RateResult:
+    """The :class:`RateResult` of :func:`trellis_rates`' per-run estimates ``r``: the forward recursion when the
+    state is exact, else its reduced-state lower bound (the auxiliary upper bound quoted in the message)."""
     lo, up = r["lower"], r["upper"]
     k = lo.size
     se = float(lo.std(ddof=1) / np.sqrt(k))
@@ -388,7 +394,7 @@ def information_rate(hits, background, symbols, input_law, *, interference=None,
         msg = (f"{r['states']} trellis states, memory L={r['memory']}; standard error from the spread of "
                f"{k} independent runs of {n_symbols} symbols")
     else:
-        method = f"reduced-state lower bound (L'={r['kept']})"
+        method = f"reduced-state trellis lower bound (keeps {r['kept']} of {r['memory']} lags)"
         msg = (f"auxiliary channel keeps {r['kept']} of {r['memory']} lags exactly ({r['states']} states), "
                f"the rest as mean interference; outputs simulated from the full channel, so the rate is a "
                f"lower bound; auxiliary upper bound {up.mean():.6g} ± {up.std(ddof=1) / np.sqrt(k):.2g} bits; "
