@@ -15,6 +15,7 @@ length     m             ``"5 um"``, ``"5 µm"``, ``"0.5 mm"``, ``5e-6``
 time       s             ``"500 ms"``, ``"2 min"``, ``0.2``
 diffusion  m^2/s         ``"79.4 um^2/s"``, ``"7.94e-11 m^2/s"``
 rate       1/s           ``"0.1 1/s"``, ``"0.1 /s"``, ``"3 Hz"``
+velocity   m/s           ``"10 um/s"``, ``"1e-5 m/s"`` (flow, surface reaction rates)
 count      molecules     ``1000``, ``"1e4"``, ``"1e4 molecules"``
 ========== ============= =====================================================
 """
@@ -37,6 +38,7 @@ DIMENSIONS: dict[str, tuple[str, str, str, str]] = {
     "time": ("second", "seconds", '"500 ms"', "0.5"),
     "diffusion": ("meter**2/second", "m^2/s", '"79.4 um^2/s"', "7.94e-11"),
     "rate": ("1/second", "1/s", '"0.1 /s"', "0.1"),
+    "velocity": ("meter/second", "m/s", '"10 um/s"', "1e-5"),
     "count": ("dimensionless", "molecules", '"1e4"', "10000"),
 }
 
@@ -46,6 +48,7 @@ _WHAT = {
     "time": "a time",
     "diffusion": "a diffusion coefficient",
     "rate": "a rate",
+    "velocity": "a velocity",
     "count": "a molecule count",
 }
 
@@ -102,7 +105,8 @@ def to_si(value: object, dimension: str, field: str) -> float:
         A plain number (already SI) or a string ``"<number> <unit>"`` such as ``"5 um"`` or ``"79.4 um^2/s"``.
         For ``"count"`` a string may be a bare number or end in ``molecules``.
     dimension : str
-        One of ``"length"`` (m), ``"time"`` (s), ``"diffusion"`` (m^2/s), ``"rate"`` (1/s), ``"count"``.
+        One of ``"length"`` (m), ``"time"`` (s), ``"diffusion"`` (m^2/s), ``"rate"`` (1/s), ``"velocity"`` (m/s),
+        ``"count"``.
     field : str
         Dotted name of the entry, used in error messages (e.g. ``"receiver[1].radius"``).
 

@@ -3,10 +3,12 @@
 File layout (every quantity a plain SI number or a string with units, e.g. ``"5 um"``)::
 
     name = "..."                                   # required
-    [medium]      diffusion (required), degradation (1/s, default 0)
+    [medium]      diffusion (required), degradation (1/s, default 0),
+                  flow = [vx, vy, vz] (uniform flow velocity, m/s, default at rest)
     [[emitter]]   name, position = [x, y, z]       # one table per emitter, at least one
-    [[receiver]]  name, centre = [x, y, z], radius, kind = "absorbing" | "passive",
-                  sample_offset (passive only; default: the end of the slot)
+    [[receiver]]  name, centre = [x, y, z], radius, kind = "absorbing" | "passive" | "reactive",
+                  sample_offset (passive only; default: the end of the slot),
+                  reaction_rate (reactive only: surface reaction rate, m/s, e.g. "20 um/s")
     [channel]     symbol_interval (required), memory (int or "auto"), memory_tolerance, background,
                   counting, residual, response, particles, time_step, seed
     [signalling]  scheme, levels, peak, budget, emitter (name or index), silent, amplitudes   # optional
@@ -44,9 +46,9 @@ else:  # pragma: no cover
 __all__ = ["load_scenario", "scenario_from_dict"]
 
 _TOP = ("name", "medium", "emitter", "receiver", "channel", "signalling")
-_MEDIUM = ("diffusion", "degradation")
+_MEDIUM = ("diffusion", "degradation", "flow")
 _EMITTER = ("name", "position")
-_RECEIVER = ("name", "centre", "radius", "kind", "sample_offset")
+_RECEIVER = ("name", "centre", "radius", "kind", "sample_offset", "reaction_rate")
 _CHANNEL = (
     "symbol_interval",
     "memory",
@@ -255,7 +257,18 @@ def _medium(t: dict) -> Medium:
     fix = 'give a diffusion coefficient such as "79.4 um^2/s" or 7.94e-11 (m^2/s)'
     diffusion = to_si(_require(t, "diffusion", "medium.", fix), "diffusion", "medium.diffusion")
     degradation = to_si(t.get("degradation", 0.0), "rate", "medium.degradation")
-    return Medium(diffusion=diffusion, degradation=degradation)
+    return Medium(diffusion=diffusion, degradation=degradation, flow=_flow(t))
+
+
+def _flow(t: dict) -> tuple[float, float, float]:
+    """``[medium] flow``: a velocity vector of 3 components (a scalar is refused: its direction is unknown)."""
+    value = t.get("flow", [0.0, 0.0, 0.0])
+    fix = 'give a velocity vector [vx, vy, vz] such as flow = ["10 um/s", "0 um/s", "0 um/s"] (m/s)'
+    if not isinstance(value, list) or len(value) != 3:
+        problem = ("is a single value, but the flow is a velocity vector with a direction"
+                   if not isinstance(value, list) else "must be a list of 3 velocity components [vx, vy, vz]")
+        raise InputError("medium.flow", value, problem, fix)
+    return tuple(to_si(c, "velocity", f"medium.flow[{k}]") for k, c in enumerate(value))
 
 
 def _emitter(t: dict, i: int) -> Emitter:
@@ -275,7 +288,10 @@ def _receiver(t: dict, j: int) -> Receiver:
     offset = t.get("sample_offset")
     if offset is not None:
         offset = to_si(offset, "time", p + "sample_offset")
-    return Receiver(name=name, centre=centre, radius=radius, kind=kind, sample_offset=offset)
+    rate = t.get("reaction_rate")
+    if rate is not None:
+        rate = to_si(rate, "velocity", p + "reaction_rate")
+    return Receiver(name=name, centre=centre, radius=radius, kind=kind, sample_offset=offset, reaction_rate=rate)
 
 
 def _channel(t: dict, n_rx: int) -> Channel:

@@ -11,7 +11,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-ReceiverKind = str  # "absorbing" | "passive"
+ReceiverKind = str  # "absorbing" | "passive" | "reactive"
 
 
 @dataclass(frozen=True)
@@ -20,10 +20,12 @@ class Medium:
 
     diffusion : m^2/s, > 0.
     degradation : first-order degradation rate of the signalling molecule, 1/s, >= 0.
+    flow : uniform flow velocity of the fluid, m/s, shape (3,) (default at rest).
     """
 
     diffusion: float
     degradation: float = 0.0
+    flow: tuple[float, float, float] = (0.0, 0.0, 0.0)
 
 
 @dataclass(frozen=True)
@@ -44,6 +46,9 @@ class Receiver:
         (counts the molecules inside the sphere at one instant per slot).
     sample_offset : passive receivers only: seconds from the start of a slot to the sampling instant,
         in (0, symbol_interval]; ``None`` means the end of the slot.
+    reaction_rate : ``"reactive"`` receivers only: surface reaction rate kappa, m/s (> 0), in the Robin
+        boundary condition ``D dc/dn = kappa c`` (a molecule that touches the sphere is taken with a probability
+        that grows with kappa; kappa -> infinity is the absorbing sphere).
     """
 
     name: str
@@ -51,6 +56,7 @@ class Receiver:
     radius: float
     kind: ReceiverKind = "absorbing"
     sample_offset: float | None = None
+    reaction_rate: float | None = None
 
 
 @dataclass(frozen=True)
@@ -131,6 +137,18 @@ class Scenario:
     def receiver_radii(self) -> np.ndarray:
         """Receiver radii, metres, shape (R,)."""
         return np.asarray([r.radius for r in self.receivers], dtype=float)
+
+    @property
+    def reaction_rates(self) -> np.ndarray:
+        """Surface reaction rates, m/s, shape (R,): ``inf`` for absorbing receivers, the given rate for reactive
+        ones, 0 for passive ones."""
+        rates = {"absorbing": lambda r: np.inf, "reactive": lambda r: float(r.reaction_rate)}
+        return np.asarray([rates.get(r.kind, lambda r: 0.0)(r) for r in self.receivers], dtype=float)
+
+    @property
+    def flow(self) -> np.ndarray:
+        """Uniform flow velocity, m/s, shape (3,)."""
+        return np.asarray(self.medium.flow, dtype=float).reshape(3)
 
     @property
     def background(self) -> np.ndarray:

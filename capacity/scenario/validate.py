@@ -29,7 +29,7 @@ __all__ = [
     "validate_scenario",
 ]
 
-RECEIVER_KINDS = ("absorbing", "passive")
+RECEIVER_KINDS = ("absorbing", "passive", "reactive")
 COUNTING_LAWS = ("poisson", "binomial")
 RESIDUAL_RULES = ("interference", "drop")
 RESPONSE_MODELS = ("lone", "shadowed", "particles")
@@ -47,6 +47,7 @@ LIMITS = {
     "seed": 2**63 - 1,
     "particles": 10**9,
     "levels": 10**4,
+    "velocity": 1.0,
 }
 
 # thresholds of geometry_warnings (fractions of a radius, of a slot, ...)
@@ -168,6 +169,7 @@ def validate_scenario(s: Scenario) -> Scenario:
     if not isinstance(s.name, str) or not s.name.strip():
         raise InputError("name", s.name, "must be a non-empty string", 'add a line such as name = "two receivers"')
     _check_medium(s)
+    _check_flow(s)
     _positive(
         "channel.symbol_interval", s.channel.symbol_interval, 'give a positive time such as "100 ms" or 0.1 (s)'
     )
@@ -215,6 +217,7 @@ def _check_emitters_receivers(s: Scenario) -> None:
         _at_most(f"{f}.radius", r.radius, LIMITS["length"], "m",
                  'give a radius such as "5 um" or 5e-6 (metres); check the units')
         _choice(f"{f}.kind", r.kind, RECEIVER_KINDS)
+        _check_reaction_rate(f, r)
         if r.sample_offset is None:
             continue
         if r.kind != "passive":
@@ -233,6 +236,40 @@ def _check_emitters_receivers(s: Scenario) -> None:
                 "give a time after the slot start and no later than its end, or leave it out "
                 "to sample at the end of the slot",
             )
+
+
+def _check_flow(s: Scenario) -> None:
+    """``medium.flow``: a finite velocity vector of 3 components, each at most LIMITS["velocity"] m/s."""
+    flow = s.medium.flow
+    fix = 'give a velocity vector [vx, vy, vz] such as flow = ["10 um/s", "0 um/s", "0 um/s"] (m/s)'
+    if not isinstance(flow, (tuple, list, np.ndarray)) or len(flow) != 3:
+        raise InputError("medium.flow", flow, "must be a velocity vector of 3 components [vx, vy, vz]", fix)
+    for k, c in enumerate(flow):
+        _finite(f"medium.flow[{k}]", c, fix)
+        _at_most(f"medium.flow[{k}]", c, LIMITS["velocity"], "m/s", fix + "; check the units")
+
+
+def _check_reaction_rate(f: str, r) -> None:
+    """``reaction_rate``: required, finite and > 0 for reactive receivers; absent for the other kinds."""
+    fix = 'give a surface reaction rate such as reaction_rate = "20 um/s" (m/s)'
+    if r.kind != "reactive":
+        if r.reaction_rate is not None:
+            raise InputError(f"{f}.reaction_rate", r.reaction_rate,
+                             f'is only used by reactive receivers (this one is "{r.kind}")',
+                             'remove reaction_rate, or set kind = "reactive"')
+        return
+    if r.reaction_rate is None:
+        raise InputError(f"{f}.reaction_rate", None, "is missing: a reactive receiver needs its surface reaction rate",
+                         fix)
+    rate = _finite(f"{f}.reaction_rate", r.reaction_rate, fix)
+    if rate < 0.0:
+        raise InputError(f"{f}.reaction_rate", r.reaction_rate, "must not be negative (it is a rate, m/s)", fix)
+    if rate == 0.0:
+        raise InputError(f"{f}.reaction_rate", r.reaction_rate,
+                         "is 0: a receiver that never reacts counts nothing",
+                         fix + ', or kind = "passive" to count the molecules inside without taking them')
+    _at_most(f"{f}.reaction_rate", rate, LIMITS["velocity"] * 1e3, "m/s",
+             'use kind = "absorbing" for a sphere that takes every molecule that touches it')
 
 
 def _check_channel(s: Scenario) -> None:
@@ -399,7 +436,7 @@ def geometry_warnings(s: Scenario) -> list[str]:
         for j, r in enumerate(s.receivers):
             dist = float(np.linalg.norm(em[i] - rc[j]))
             gap = dist - radii[j]
-            basis = gap if r.kind == "absorbing" else dist
+            basis = dist if r.kind == "passive" else gap
             peak = float(hitting_peak_time(basis, dcoef, k))
             earliest = min(earliest, peak)
             if gap < _NEAR_SURFACE * radii[j]:

@@ -1,0 +1,230 @@
+"""One sphere alone in a uniform flow ``v``: passive (exact) and absorbing or reactive spheres (Laplace domain).
+
+Passive sphere (exact): the fluid carries the whole Gaussian cloud, so the probability of being inside the ball at
+time ``t`` is the no-flow form (:func:`capacity.physics.lone.passive_probability`) at the drifted centre distance
+``|x0 + v t - c|`` (reference sheet, passive sphere with uniform flow).
+
+Absorbing sphere (exact up to the numerical inversion). Girsanov's theorem for Brownian motion with constant drift
+``v`` (generator ``D Lap + v . grad``), stopped at the hitting time ``tau`` of the sphere, gives the density of the
+drifted path law against the driftless one on ``F_tau``::
+
+    dP_v / dP_0 = exp( v . (X_tau - x0) / (2 D) - |v|^2 tau / (4 D) )
+
+(Karatzas & Shreve, *Brownian Motion and Stochastic Calculus*, 1991, Thm 3.5.1 and Cor. 3.5.2 [memory]). So the
+joint law of the hitting time and the landing point ``xi = c + a n`` with flow is the driftless one times
+``exp(v.(c - x0)/(2D)) exp(a v.n/(2D)) exp(-|v|^2 t/(4D))``. The last factor shifts the Laplace variable,
+``p -> p + |v|^2/(4D)`` (like degradation); the driftless joint transform per solid angle is the Legendre series
+``g~(p) / (4 pi) sum_n (2n+1) P_n(n . e) rho_n(p)`` (:mod:`capacity.physics._laplace`; ``e`` the unit vector from
+the centre to the source), and integrating ``exp(beta n . u)`` (``u = v/|v|``, ``beta = a |v| / (2 D) = Pe/2``)
+against it over the sphere by the Funk-Hecke formula (``exp(beta cos) = sum_l (2l+1) i_l(beta) P_l(cos)``, with
+``i_l`` the modified spherical Bessel functions of the first kind) leaves a single series::
+
+    F~_v(p) = exp(v . (c - x0) / (2 D)) g~(p') sum_n (2n+1) i_n(beta) P_n(e . u) rho_n(p'),
+    p' = p + k + |v|^2 / (4 D).
+
+Slot-edge CDFs by the fixed Talbot contour (Abate & Valko 2004, as in the shadowed model); the eventual capture is
+the transform at ``p = 0``. The combination of the Girsanov weight with the Funk-Hecke series is our own
+derivation. Numerics: ``i_n`` from its positive power series (no cancellation); the series in ``n`` alternates in
+sign when the flow points from the source towards the sphere (``e . u < 0``), where terms of size ~exp(beta)
+cancel to a result of size ~exp(-beta): relative round-off ~ 1e-16 exp(2 beta) = 1e-16 exp(Pe), so the model is
+limited to Pe = |v| a / D <= :data:`MAX_PECLET` (round-off below ~1e-7 there).
+
+Reactive sphere (Robin condition ``D dc/dn = kappa c``): mode ``n`` of the exterior solution gets the factor
+``c_n = 1 / (1 + (D q / kappa) (u_(n+1)(a q) - n / (a q)))``, ``u_(n+1) = k_(n+1)/k_n`` (from
+``k_n'/k_n = n/x - u_(n+1)``), i.e. ``rho_n -> rho_n c_n / c_0`` and ``g~ -> g~ c_0`` (``c_0`` gives the closed form
+of :mod:`capacity.physics.reactive`). With flow this keeps the Girsanov weight of the landing point but leaves out
+the term ``-v . int n dL / (2 D)`` that the reflections (touches without reaction) add to the density, so for a
+reactive sphere in a flow it is an approximation; its accuracy against the particle simulator is measured in
+``studies/validate_flow_walls.py`` and stated in :func:`validity_notes`.
+"""
+
+from __future__ import annotations
+
+import math
+from functools import partial
+
+import jax
+import jax.numpy as jnp
+import numpy as np
+from jax.scipy.special import gammaln
+
+from capacity import _jax  # noqa: F401  (float64)
+from capacity.physics._laplace import talbot_nodes
+from capacity.physics.lone import passive_probability
+
+#: Legendre orders of the landing series (as in the shadowed model)
+N_ORDERS = 80
+#: terms of the power series of i_n(beta) (enough for beta = Pe/2 <= 40)
+N_SERIES = 96
+#: nodes of the fixed Talbot contour per slot edge
+TALBOT_TERMS = 24
+#: largest Peclet number |v| a / D for absorbing / reactive spheres (see the module docstring)
+MAX_PECLET = 20.0
+#: passive tails: explicit samples after lag L before the Euler-Maclaurin remainder
+PASSIVE_TAIL_TERMS = 2048
+_GL_NODES, _GL_WEIGHTS = np.polynomial.legendre.leggauss(64)
+_GL_U, _GL_W = 0.5 * (_GL_NODES + 1.0), 0.5 * _GL_WEIGHTS
+_LOG2 = math.log(2.0)
+
+
+def _cx(a):
+    return jnp.asarray(a).astype(jnp.complex128)
+
+
+def _log_odd_double_factorial(m):
+    """log (2m+1)!! = (m+1) log 2 + lgamma(m + 3/2) - log(pi)/2."""
+    return (m + 1.0) * _LOG2 + gammaln(m + 1.5) - 0.5 * math.log(math.pi)
+
+
+def spherical_i(beta, n_max: int = N_ORDERS, n_series: int = N_SERIES):
+    """Modified spherical Bessel functions of the first kind ``i_n(beta)``, n = 0..n_max, for real ``beta >= 0``.
+
+    Power series ``i_n(b) = sum_k b^(n+2k) / (2^k k! (2n+2k+1)!!)`` (DLMF 10.53.3 [memory]), all terms positive,
+    summed in log form; ``i_0(0) = 1`` and ``i_n(0) = 0`` for n >= 1 exactly. Shape (n_max+1,).
+    """
+    n = jnp.arange(n_max + 1, dtype=jnp.float64)[:, None]
+    k = jnp.arange(n_series, dtype=jnp.float64)[None, :]
+    power = n + 2.0 * k
+    pos = beta > 0.0
+    log_b = jnp.log(jnp.where(pos, beta, 1.0))
+    log_term = power * log_b - k * _LOG2 - gammaln(k + 1.0) - _log_odd_double_factorial(n + k)
+    term = jnp.where(power == 0.0, 1.0, jnp.where(pos, jnp.exp(log_term), 0.0))
+    return jnp.sum(term, axis=1)
+
+
+def _legendre(x, n_max: int):
+    """``P_n(x)`` for n = 0..n_max at a scalar x."""
+
+    def step(carry, n):
+        p_prev, p_cur = carry
+        p_next = ((2.0 * n + 1.0) * x * p_cur - n * p_prev) / (n + 1.0)
+        return (p_cur, p_next), p_next
+
+    _, rest = jax.lax.scan(step, (jnp.ones_like(x), x), jnp.arange(1, n_max, dtype=jnp.float64))
+    return jnp.concatenate([jnp.ones_like(x)[None], x[None], rest])
+
+
+def _mode_ratios(x_out, x_in, n_max: int):
+    """``rho_n = k_n(x_out) k_0(x_in) / (k_0(x_out) k_n(x_in))`` and ``u_(n+1)(x_in) = k_(n+1)/k_n (x_in)``,
+    n = 0..n_max (shapes (n_max+1, P)), from the upward recurrence ``u_1 = 1 + 1/x``, ``u_(i+1) = 1/u_i +
+    (2i+1)/x`` (stable for k_n)."""
+
+    def step(carry, i):
+        u_out, u_in, rho = carry
+        rho_next = rho * u_out / u_in
+        order = 2.0 * i + 1.0
+        return (1.0 / u_out + order / x_out, 1.0 / u_in + order / x_in, rho_next), (rho, u_in)
+
+    init = (1.0 + 1.0 / x_out, 1.0 + 1.0 / x_in, jnp.ones_like(x_out))
+    _, (rho, u_in) = jax.lax.scan(step, init, jnp.arange(1, n_max + 2, dtype=jnp.float64))
+    return rho, u_in
+
+
+def flow_transform(q, source, centre, radius, inverse_rate, diffusion, flow, n_max: int = N_ORDERS):
+    """Laplace transform of the hitting (reaction) time density of one sphere in a uniform flow.
+
+    q : (P,) complex, ``sqrt((p + k + |v|^2/(4D)) / D)``. source, centre : (3,) m. radius : m. inverse_rate :
+    ``1/kappa`` in s/m (0 for an absorbing sphere). diffusion : m^2/s. flow : (3,) m/s. Returns (P,) complex.
+    """
+    rel = source - centre
+    r0 = jnp.linalg.norm(rel)
+    speed = jnp.linalg.norm(flow)
+    moving = speed > 0.0
+    cos_g = jnp.where(moving, jnp.dot(rel, flow) / (r0 * jnp.where(moving, speed, 1.0)), 1.0)
+    beta = radius * speed / (2.0 * diffusion)
+    rho, u_in = _mode_ratios(_cx(r0) * q, _cx(radius) * q, n_max)  # (N+1, P)
+    n = jnp.arange(n_max + 1, dtype=jnp.float64)[:, None]
+    x_in = _cx(radius) * q
+    robin = 1.0 / (1.0 + _cx(diffusion * inverse_rate) * q * (u_in - _cx(n) / x_in))  # c_n, (N+1, P)
+    weights = (2.0 * n[:, 0] + 1.0) * spherical_i(beta, n_max) * _legendre(cos_g, n_max)  # (N+1,)
+    series = jnp.einsum("n,np->p", _cx(weights), rho * robin / robin[:1])
+    lone = _cx(radius / r0) * jnp.exp(-_cx(r0 - radius) * q) * robin[0]
+    girsanov = jnp.exp(jnp.dot(flow, centre - source) / (2.0 * diffusion))
+    return _cx(girsanov) * lone * series
+
+
+def _absorbing_pair(source, centre, radius, inverse_rate, diffusion, degradation, flow, symbol_interval, memory):
+    edges = symbol_interval * jnp.arange(1, memory + 2, dtype=jnp.float64)
+    points, gamma = talbot_nodes(edges, TALBOT_TERMS)  # (L+1, M)
+    p = points.reshape(-1)
+    shift = degradation + jnp.dot(flow, flow) / (4.0 * diffusion)
+    q = jnp.sqrt((p + _cx(shift)) / _cx(diffusion))
+    transform = flow_transform(q, source, centre, radius, inverse_rate, diffusion, flow)
+    cdf = jnp.real(jnp.sum(gamma * (transform / p).reshape(memory + 1, TALBOT_TERMS), axis=1))
+    hits = jnp.diff(jnp.concatenate([jnp.zeros(1), cdf]))
+    floor = 1e-12 / radius  # stands in for q = 0 (no flow, no degradation): changes the result by ~1e-12
+    q0 = jnp.maximum(jnp.sqrt(shift / diffusion), floor)
+    eventual = jnp.real(flow_transform(_cx(q0)[None], source, centre, radius, inverse_rate, diffusion, flow))[0]
+    return hits, eventual - cdf[-1]
+
+
+def _drifted(t, source, centre, flow):
+    rel = source[None, :] + t[:, None] * flow[None, :] - centre[None, :]
+    sq = jnp.sum(rel * rel, axis=1)
+    return jnp.where(sq > 0.0, jnp.sqrt(jnp.where(sq > 0.0, sq, 1.0)), 0.0)
+
+
+def _passive_pair(source, centre, radius, offset, diffusion, degradation, flow, symbol_interval, memory):
+    """Samples ``P(l Ts + offset)`` at the drifted distance, and the sum of all later samples.
+
+    Tail: ``PASSIVE_TAIL_TERMS`` explicit samples, then the Euler-Maclaurin remainder from ``t_K``:
+    ``(1/Ts) int_{t_K}^inf P + P(t_K)/2 - Ts/12 P'(t_K)`` (P' by a central difference), the integral by 64-point
+    Gauss-Legendre in ``u``, ``t = t_K / u^2`` (``P ~ t^-3/2 exp(-(k + |v|^2/4D) t)`` far out, smooth in u).
+    """
+
+    def value(t):
+        return passive_probability(t, radius, _drifted(t, source, centre, flow), diffusion, degradation)
+
+    times = jnp.arange(memory + 1, dtype=jnp.float64) * symbol_interval + offset
+    start = (memory + 1) * symbol_interval + offset
+    terms = PASSIVE_TAIL_TERMS
+    samples = value(start + jnp.arange(terms + 2, dtype=jnp.float64) * symbol_interval)  # j = 0 .. K+1
+    tk = start + terms * symbol_interval
+    u = jnp.asarray(_GL_U)
+    integral = jnp.sum(jnp.asarray(_GL_W) * value(tk / u**2) * 2.0 * tk / u**3)
+    cd = (samples[terms + 1] - samples[terms - 1]) / (2.0 * symbol_interval)
+    remainder = integral / symbol_interval + 0.5 * samples[terms] - symbol_interval / 12.0 * cd
+    return value(times), jnp.sum(samples[:terms]) + remainder
+
+
+def _pair(source, centre, radius, passive, inverse_rate, offset, diffusion, degradation, flow, symbol_interval,
+          memory):
+    a_hits, a_tail = _absorbing_pair(source, centre, radius, inverse_rate, diffusion, degradation, flow,
+                                     symbol_interval, memory)
+    p_hits, p_tail = _passive_pair(source, centre, radius, offset, diffusion, degradation, flow, symbol_interval,
+                                   memory)
+    return jnp.where(passive, p_hits, a_hits), jnp.where(passive, p_tail, a_tail)
+
+
+@partial(jax.jit, static_argnames=("memory",))
+def flow_hits(emitters, centres, radii, passive, rates, sample_offsets, diffusion, degradation, flow,
+              symbol_interval, memory: int):
+    """Slot hit probabilities of every emitter and lone sphere in a uniform flow.
+
+    emitters : (E, 3) m. centres : (R, 3) m. radii : (R,) m. passive : (R,) bool. rates : (R,) surface reaction
+    rates kappa, m/s (``inf`` for absorbing spheres; ignored for passive ones). sample_offsets : (R,) s (passive
+    sampling instant within the slot). diffusion : m^2/s. degradation : 1/s. flow : (3,) m/s. symbol_interval : s.
+    memory : L (static).
+
+    Returns ``(hits (E, R, L+1), tail (E, R))``. Passive: samples at ``l Ts + offset`` and the sum of the later
+    ones. Absorbing / reactive: slot probabilities of the first hit (reaction) and the probability after
+    ``(L+1) Ts``. With ``flow = 0`` this reproduces :func:`capacity.physics.lone.lone_hits` and
+    :func:`capacity.physics.reactive.reactive_hits` (tests/test_flow.py).
+    """
+    emitters, centres, radii, sample_offsets, flow = (jnp.asarray(v, dtype=jnp.float64) for v in
+                                                      (emitters, centres, radii, sample_offsets, flow))
+    rates = jnp.asarray(rates, dtype=jnp.float64)
+    inverse_rate = jnp.where(jnp.isinf(rates), 0.0, 1.0 / jnp.where(rates > 0.0, rates, 1.0))
+    passive = jnp.asarray(passive, dtype=bool)
+    diffusion, degradation, symbol_interval = (jnp.asarray(v, dtype=jnp.float64) for v in
+                                               (diffusion, degradation, symbol_interval))
+    one = partial(_pair, diffusion=diffusion, degradation=degradation, flow=flow, symbol_interval=symbol_interval,
+                  memory=memory)
+    over_receivers = jax.vmap(one, in_axes=(None, 0, 0, 0, 0, 0))
+    over_emitters = jax.vmap(over_receivers, in_axes=(0, None, None, None, None, None))
+    return over_emitters(emitters, centres, radii, passive, inverse_rate, sample_offsets)
+
+
+def peclet_numbers(radii, flow, diffusion) -> np.ndarray:
+    """Pe = |v| a / D per sphere (dimensionless), radii (R,) m, flow (3,) m/s, diffusion m^2/s."""
+    return np.asarray(radii, dtype=float) * float(np.linalg.norm(np.asarray(flow, dtype=float))) / float(diffusion)
