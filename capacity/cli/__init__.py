@@ -21,6 +21,7 @@ COMMANDS = {
     "compare": "capacity.cli.compare",
     "optimise": "capacity.cli.optimise",
     "demo": "capacity.cli.demo",
+    "sweep": "capacity.cli.sweep",
 }
 
 

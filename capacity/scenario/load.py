@@ -45,7 +45,8 @@ else:  # pragma: no cover
 
 __all__ = ["load_scenario", "scenario_from_dict"]
 
-_TOP = ("name", "medium", "emitter", "receiver", "channel", "signalling")
+# [sweep] is read by capacity.sweep (the grid a file carries); the scenario itself ignores it
+_TOP = ("name", "medium", "emitter", "receiver", "channel", "signalling", "sweep")
 _MEDIUM = ("diffusion", "degradation", "flow")
 _EMITTER = ("name", "position")
 _RECEIVER = ("name", "centre", "radius", "kind", "sample_offset", "reaction_rate")

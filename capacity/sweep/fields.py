@@ -1,0 +1,155 @@
+"""Scenario fields a sweep can vary: dotted paths, the kind of value each takes, and how to set one.
+
+A path names one entry of a scenario file: ``channel.symbol_interval``, ``signalling.budget``,
+``medium.diffusion``, ``receiver[1].radius``, ``emitter[0].position`` (a whole point), ``receiver[0].centre[0]``
+(one coordinate: 0 = x, 1 = y, 2 = z) or ``receiver[*].radius`` (every receiver at once). Values are written into
+the scenario's TOML table, which the project's own loader then validates, so a value the loader refuses gives
+its usual message.
+"""
+
+from __future__ import annotations
+
+import copy
+import re
+from typing import NamedTuple
+
+from capacity.errors import InputError
+
+#: (table, key) -> kind of value. Kinds: a dimension of :mod:`capacity.units` (SI number), "number" (plain
+#: float), "int", "memory" (int or "auto"), "word" (an option name, checked by the loader), "bool", "emitter"
+#: (index or name), "point" (three lengths).
+KINDS: dict[tuple[str, str], str] = {
+    ("medium", "diffusion"): "diffusion",
+    ("medium", "degradation"): "rate",
+    ("emitter", "position"): "point",
+    ("receiver", "centre"): "point",
+    ("receiver", "radius"): "length",
+    ("receiver", "kind"): "word",
+    ("receiver", "sample_offset"): "time",
+    ("channel", "symbol_interval"): "time",
+    ("channel", "memory"): "memory",
+    ("channel", "memory_tolerance"): "number",
+    ("channel", "background"): "count",
+    ("channel", "counting"): "word",
+    ("channel", "residual"): "word",
+    ("channel", "response"): "word",
+    ("channel", "particles"): "int",
+    ("channel", "time_step"): "time",
+    ("channel", "seed"): "int",
+    ("signalling", "scheme"): "word",
+    ("signalling", "levels"): "int",
+    ("signalling", "peak"): "count",
+    ("signalling", "budget"): "count",
+    ("signalling", "emitter"): "emitter",
+    ("signalling", "silent"): "bool",
+}
+
+#: SI unit of each numeric kind, for labels and dataset attributes
+UNITS = {"length": "m", "time": "s", "diffusion": "m^2/s", "rate": "1/s", "count": "molecules", "number": "1",
+         "int": "1", "memory": "lags"}
+NUMERIC = ("length", "time", "diffusion", "rate", "count", "number", "int")
+_AXES = "xyz"
+
+_SECTION = re.compile(r"^(medium|channel|signalling)\.([a-z_]+)$")
+_ITEM = re.compile(r"^(emitter|receiver)\[(\d+|\*)\]\.([a-z_]+)(?:\[(\d+)\])?$")
+
+
+class Field(NamedTuple):
+    """One parsed path. ``index`` is an int, ``"*"`` (every item) or None (a section key); ``component`` picks
+    one coordinate of a point (0, 1, 2) or is None."""
+
+    path: str
+    table: str
+    index: int | str | None
+    key: str
+    component: int | None
+
+    @property
+    def kind(self) -> str:
+        if self.component is not None:
+            return "length"
+        return KINDS[(self.table, self.key)]
+
+    @property
+    def leaf(self) -> str:
+        """Last path element, used as the column name: ``radius``, ``symbol_interval``, ``centre_x``."""
+        return self.key if self.component is None else f"{self.key}_{_AXES[self.component]}"
+
+    @property
+    def owner(self) -> str:
+        """Prefix that tells two fields with the same leaf apart: ``receiver1``, ``receivers``, ``channel``."""
+        if self.index is None:
+            return self.table
+        return f"{self.table}s" if self.index == "*" else f"{self.table}{self.index}"
+
+
+def known_paths() -> list[str]:
+    """Every path pattern a sweep accepts (for suggestions and help)."""
+    out = []
+    for (table, key), kind in KINDS.items():
+        if table in ("emitter", "receiver"):
+            out.append(f"{table}[0].{key}")
+            if kind == "point":
+                out.append(f"{table}[0].{key}[0]")
+        else:
+            out.append(f"{table}.{key}")
+    return out
+
+
+def parse_field(path: str, option: str = "--vary") -> Field:
+    """Parse a dotted path; an unknown one raises :class:`InputError` naming ``option`` with the nearest path."""
+    text = path.strip()
+    m = _SECTION.match(text)
+    if m and (m.group(1), m.group(2)) in KINDS:
+        return Field(text, m.group(1), None, m.group(2), None)
+    m = _ITEM.match(text)
+    if m and (m.group(1), m.group(3)) in KINDS:
+        table, index, key, comp = m.group(1), m.group(2), m.group(3), m.group(4)
+        index = index if index == "*" else int(index)
+        if comp is not None:
+            if KINDS[(table, key)] != "point" or int(comp) > 2:
+                raise InputError(option, path, f"[{comp}] picks a coordinate, but {table}.{key} is not a point or "
+                                 "the index is above 2", f"write {table}[i].position[0..2] or centre[0..2]")
+            comp = int(comp)
+        return Field(text, table, index, key, comp)
+    from capacity.scenario.load import _nearest
+
+    generic = re.sub(r"\[(\d+|\*)\]", "[0]", text)
+    close = _nearest(generic, known_paths(), cutoff=0.5)
+    hint = f'did you mean "{close}"? ' if close else ""
+    raise InputError(option, path, "is not a scenario field a sweep can vary",
+                     hint + "fields: " + ", ".join(known_paths()) + " ([*] = every emitter/receiver)")
+
+
+def set_value(data: dict, field: Field, value, option: str = "--vary") -> dict:
+    """A deep copy of the scenario table ``data`` with ``field`` set to ``value`` (SI number, word, point...)."""
+    out = copy.deepcopy(data)
+    if field.index is None:
+        section = out.setdefault(field.table, {})
+        if not isinstance(section, dict):
+            raise InputError(option, field.path, f"[{field.table}] is not a table in the scenario", "fix the file")
+        section[field.key] = value
+        return out
+    items = out.get(field.table)
+    if not isinstance(items, list) or not items:
+        raise InputError(option, field.path, f"the scenario has no [[{field.table}]] tables", "fix the file")
+    if field.index == "*":
+        chosen = range(len(items))
+    elif field.index >= len(items):
+        raise InputError(option, field.path, f"the scenario has {len(items)} {field.table}s (indices 0 to "
+                         f"{len(items) - 1})", f"use an index below {len(items)}, or [*] for all")
+    else:
+        chosen = [field.index]
+    for k in chosen:
+        item = items[k]
+        if field.component is None:
+            item[field.key] = value
+            continue
+        point = item.get(field.key)
+        if not isinstance(point, list) or len(point) != 3:
+            raise InputError(option, field.path, f"{field.table}[{k}].{field.key} is not a point [x, y, z]",
+                             "fix the scenario file")
+        point = list(point)
+        point[field.component] = value
+        item[field.key] = point
+    return out
