@@ -29,13 +29,11 @@ sign when the flow points from the source towards the sphere (``e . u < 0``), wh
 cancel to a result of size ~exp(-beta): relative round-off ~ 1e-16 exp(2 beta) = 1e-16 exp(Pe), so the model is
 limited to Pe = |v| a / D <= :data:`MAX_PECLET` (round-off below ~1e-7 there).
 
-Reactive sphere (Robin condition ``D dc/dn = kappa c``): mode ``n`` of the exterior solution gets the factor
-``c_n = 1 / (1 + (D q / kappa) (u_(n+1)(a q) - n / (a q)))``, ``u_(n+1) = k_(n+1)/k_n`` (from
-``k_n'/k_n = n/x - u_(n+1)``), i.e. ``rho_n -> rho_n c_n / c_0`` and ``g~ -> g~ c_0`` (``c_0`` gives the closed form
-of :mod:`capacity.physics.reactive`). With flow this keeps the Girsanov weight of the landing point but leaves out
-the term ``-v . int n dL / (2 D)`` that the reflections (touches without reaction) add to the density, so for a
-reactive sphere in a flow it is an approximation; its accuracy against the particle simulator is measured in
-``studies/validate_flow_walls.py`` and stated in :func:`validity_notes`.
+Reactive sphere (Robin condition ``D dc/dn = kappa c``): with ``u = exp(-v.x/(2D)) w`` the condition on the
+sphere picks up the term ``v.r/2`` (the flow pushes molecules against the surface on the upstream face), which
+couples neighbouring Legendre orders; the coefficients then solve a tridiagonal system per Laplace node (see
+:func:`flow_transform`). Without flow the modes decouple and the ``n = 0`` mode is the closed form of
+:mod:`capacity.physics.reactive`.
 """
 
 from __future__ import annotations
@@ -120,11 +118,43 @@ def _mode_ratios(x_out, x_in, n_max: int):
     return rho, u_in
 
 
+def _thomas(lower, diag, upper, rhs):
+    """Solve tridiagonal systems along axis 0 (shape (N+1, P)) by the Thomas algorithm (``lax.scan``)."""
+
+    def forward(carry, row):
+        c_prev, d_prev = carry
+        lo, di, up, b = row
+        denom = di - lo * c_prev
+        c_new, d_new = up / denom, (b - lo * d_prev) / denom
+        return (c_new, d_new), (c_new, d_new)
+
+    zero = jnp.zeros_like(rhs[0])
+    _, (c, d) = jax.lax.scan(forward, (zero, zero), (lower, diag, upper, rhs))
+
+    def backward(x_next, row):
+        c_i, d_i = row
+        x = d_i - c_i * x_next
+        return x, x
+
+    _, x = jax.lax.scan(backward, zero, (c, d), reverse=True)
+    return x
+
+
 def flow_transform(q, source, centre, radius, inverse_rate, diffusion, flow, n_max: int = N_ORDERS):
     """Laplace transform of the hitting (reaction) time density of one sphere in a uniform flow.
 
     q : (P,) complex, ``sqrt((p + k + |v|^2/(4D)) / D)``. source, centre : (3,) m. radius : m. inverse_rate :
     ``1/kappa`` in s/m (0 for an absorbing sphere). diffusion : m^2/s. flow : (3,) m/s. Returns (P,) complex.
+
+    ``u = e^(-v.x/(2D)) w`` turns the backward equation ``D Lap u + v.grad u = p u`` into the modified Helmholtz
+    equation for ``w`` (``q`` above); the Robin condition ``D du/dr = kappa (u - 1)`` (reflected diffusion with
+    killing on the boundary local time; it does not involve the drift) becomes
+    ``D dw/dr = (kappa + v.r/2) w - kappa exp(v.x/(2D))`` on the sphere. With the axis along ``v``,
+    ``w = exp(v.c/(2D)) sum_n A_n k_n(q r)/k_n(q a) P_n(cos)``; ``cos P_n = ((n+1) P_(n+1) + n P_(n-1))/(2n+1)`` and
+    the Funk-Hecke expansion of ``exp(beta cos)`` give, divided by ``kappa``, the tridiagonal system
+    ``A_n (D q k_n'/k_n / kappa - 1) - |v|/(2 kappa) (n/(2n-1) A_(n-1) + (n+1)/(2n+3) A_(n+1)) = -(2n+1) i_n(beta)``
+    (truncated at ``n_max``). For an absorbing sphere (``1/kappa = 0``) ``A_n = (2n+1) i_n(beta)``, the Girsanov
+    form of the module docstring; for a reactive one it is exact as well (our own derivation).
     """
     rel = source - centre
     r0 = jnp.linalg.norm(rel)
@@ -133,12 +163,18 @@ def flow_transform(q, source, centre, radius, inverse_rate, diffusion, flow, n_m
     cos_g = jnp.where(moving, jnp.dot(rel, flow) / (r0 * jnp.where(moving, speed, 1.0)), 1.0)
     beta = radius * speed / (2.0 * diffusion)
     rho, u_in = _mode_ratios(_cx(r0) * q, _cx(radius) * q, n_max)  # (N+1, P)
-    n = jnp.arange(n_max + 1, dtype=jnp.float64)[:, None]
+    n = jnp.arange(n_max + 1, dtype=jnp.float64)
     x_in = _cx(radius) * q
-    robin = 1.0 / (1.0 + _cx(diffusion * inverse_rate) * q * (u_in - _cx(n) / x_in))  # c_n, (N+1, P)
-    weights = (2.0 * n[:, 0] + 1.0) * spherical_i(beta, n_max) * _legendre(cos_g, n_max)  # (N+1,)
-    series = jnp.einsum("n,np->p", _cx(weights), rho * robin / robin[:1])
-    lone = _cx(radius / r0) * jnp.exp(-_cx(r0 - radius) * q) * robin[0]
+    log_deriv = _cx(n)[:, None] / x_in[None, :] - u_in  # k_n'(x)/k_n(x), (N+1, P)
+    eps = _cx(inverse_rate)
+    diag = eps * _cx(diffusion) * q[None, :] * log_deriv - 1.0
+    half = eps * _cx(0.5 * speed)
+    lower = jnp.broadcast_to(-half * _cx(n / jnp.maximum(2.0 * n - 1.0, 1.0))[:, None], diag.shape)
+    upper = jnp.broadcast_to(-half * _cx((n + 1.0) / (2.0 * n + 3.0))[:, None], diag.shape)
+    rhs = jnp.broadcast_to(-_cx((2.0 * n + 1.0) * spherical_i(beta, n_max))[:, None], diag.shape)
+    coeff = _thomas(lower, diag, upper, rhs)  # A_n, (N+1, P)
+    series = jnp.einsum("n,np->p", _cx(_legendre(cos_g, n_max)), coeff * rho)
+    lone = _cx(radius / r0) * jnp.exp(-_cx(r0 - radius) * q)
     girsanov = jnp.exp(jnp.dot(flow, centre - source) / (2.0 * diffusion))
     return _cx(girsanov) * lone * series
 
@@ -187,44 +223,74 @@ def _passive_pair(source, centre, radius, offset, diffusion, degradation, flow, 
     return value(times), jnp.sum(samples[:terms]) + remainder
 
 
-def _pair(source, centre, radius, passive, inverse_rate, offset, diffusion, degradation, flow, symbol_interval,
-          memory):
-    a_hits, a_tail = _absorbing_pair(source, centre, radius, inverse_rate, diffusion, degradation, flow,
-                                     symbol_interval, memory)
-    p_hits, p_tail = _passive_pair(source, centre, radius, offset, diffusion, degradation, flow, symbol_interval,
-                                   memory)
-    return jnp.where(passive, p_hits, a_hits), jnp.where(passive, p_tail, a_tail)
+@partial(jax.jit, static_argnames=("memory",))
+def _absorbing_all(emitters, centres, radii, inverse_rates, diffusion, degradation, flow, symbol_interval,
+                   memory: int):
+    one = partial(_absorbing_pair, diffusion=diffusion, degradation=degradation, flow=flow,
+                  symbol_interval=symbol_interval, memory=memory)
+    over_receivers = jax.vmap(one, in_axes=(None, 0, 0, 0))
+    return jax.vmap(over_receivers, in_axes=(0, None, None, None))(emitters, centres, radii, inverse_rates)
 
 
 @partial(jax.jit, static_argnames=("memory",))
+def _passive_all(emitters, centres, radii, offsets, diffusion, degradation, flow, symbol_interval, memory: int):
+    one = partial(_passive_pair, diffusion=diffusion, degradation=degradation, flow=flow,
+                  symbol_interval=symbol_interval, memory=memory)
+    over_receivers = jax.vmap(one, in_axes=(None, 0, 0, 0))
+    return jax.vmap(over_receivers, in_axes=(0, None, None, None))(emitters, centres, radii, offsets)
+
+
 def flow_hits(emitters, centres, radii, passive, rates, sample_offsets, diffusion, degradation, flow,
               symbol_interval, memory: int):
     """Slot hit probabilities of every emitter and lone sphere in a uniform flow.
 
-    emitters : (E, 3) m. centres : (R, 3) m. radii : (R,) m. passive : (R,) bool. rates : (R,) surface reaction
-    rates kappa, m/s (``inf`` for absorbing spheres; ignored for passive ones). sample_offsets : (R,) s (passive
-    sampling instant within the slot). diffusion : m^2/s. degradation : 1/s. flow : (3,) m/s. symbol_interval : s.
-    memory : L (static).
+    emitters : (E, 3) m. centres : (R, 3) m. radii : (R,) m. passive : (R,) bool (concrete). rates : (R,) surface
+    reaction rates kappa, m/s (``inf`` for absorbing spheres; ignored for passive ones). sample_offsets : (R,) s
+    (passive sampling instant within the slot). diffusion : m^2/s. degradation : 1/s. flow : (3,) m/s.
+    symbol_interval : s. memory : L.
 
-    Returns ``(hits (E, R, L+1), tail (E, R))``. Passive: samples at ``l Ts + offset`` and the sum of the later
-    ones. Absorbing / reactive: slot probabilities of the first hit (reaction) and the probability after
+    Returns numpy ``(hits (E, R, L+1), tail (E, R))``. Passive: samples at ``l Ts + offset`` and the sum of the
+    later ones. Absorbing / reactive: slot probabilities of the first hit (reaction) and the probability after
     ``(L+1) Ts``. With ``flow = 0`` this reproduces :func:`capacity.physics.lone.lone_hits` and
-    :func:`capacity.physics.reactive.reactive_hits` (tests/test_flow.py).
+    :func:`capacity.physics.reactive.reactive_hits` (tests/test_flow.py). The two kinds are computed by two
+    jitted functions (each differentiable and ``vmap``-ed over emitters and receivers), so a layout compiles only
+    the kind it has.
     """
-    emitters, centres, radii, sample_offsets, flow = (jnp.asarray(v, dtype=jnp.float64) for v in
-                                                      (emitters, centres, radii, sample_offsets, flow))
-    rates = jnp.asarray(rates, dtype=jnp.float64)
-    inverse_rate = jnp.where(jnp.isinf(rates), 0.0, 1.0 / jnp.where(rates > 0.0, rates, 1.0))
-    passive = jnp.asarray(passive, dtype=bool)
-    diffusion, degradation, symbol_interval = (jnp.asarray(v, dtype=jnp.float64) for v in
-                                               (diffusion, degradation, symbol_interval))
-    one = partial(_pair, diffusion=diffusion, degradation=degradation, flow=flow, symbol_interval=symbol_interval,
-                  memory=memory)
-    over_receivers = jax.vmap(one, in_axes=(None, 0, 0, 0, 0, 0))
-    over_emitters = jax.vmap(over_receivers, in_axes=(0, None, None, None, None, None))
-    return over_emitters(emitters, centres, radii, passive, inverse_rate, sample_offsets)
+    emitters, centres = np.asarray(emitters, dtype=float), np.asarray(centres, dtype=float)
+    radii, offsets = np.asarray(radii, dtype=float), np.asarray(sample_offsets, dtype=float)
+    passive = np.asarray(passive, dtype=bool)
+    rates = np.asarray(rates, dtype=float)
+    inverse = np.where(np.isinf(rates) | passive, 0.0, 1.0 / np.where(rates > 0.0, rates, 1.0))
+    args = (jnp.asarray(diffusion, dtype=jnp.float64), jnp.asarray(degradation, dtype=jnp.float64),
+            jnp.asarray(flow, dtype=jnp.float64), jnp.asarray(symbol_interval, dtype=jnp.float64))
+    hits = np.zeros((emitters.shape[0], radii.shape[0], int(memory) + 1))
+    tail = np.zeros((emitters.shape[0], radii.shape[0]))
+    for mask, fn, extra in ((~passive, _absorbing_all, inverse), (passive, _passive_all, offsets)):
+        if mask.any():
+            h, t = fn(jnp.asarray(emitters), jnp.asarray(centres[mask]), jnp.asarray(radii[mask]),
+                      jnp.asarray(extra[mask]), *args, memory=int(memory))
+            hits[:, mask], tail[:, mask] = np.asarray(h), np.asarray(t)
+    return hits, tail
 
 
 def peclet_numbers(radii, flow, diffusion) -> np.ndarray:
     """Pe = |v| a / D per sphere (dimensionless), radii (R,) m, flow (3,) m/s, diffusion m^2/s."""
     return np.asarray(radii, dtype=float) * float(np.linalg.norm(np.asarray(flow, dtype=float))) / float(diffusion)
+
+
+@jax.jit
+def eventual_capture(sources, centre, radius, rate, diffusion, degradation, flow):
+    """Probability that a molecule at each of ``sources`` (S, 3) m is eventually taken by one lone sphere in the
+    flow: the transform of :func:`flow_transform` at ``p = 0``. centre (3,) m, radius m, rate kappa m/s (inf:
+    absorbing), diffusion m^2/s, degradation 1/s, flow (3,) m/s. Returns (S,)."""
+    sources, centre, flow = (jnp.asarray(v, dtype=jnp.float64) for v in (sources, centre, flow))
+    radius, rate, diffusion, degradation = (jnp.asarray(v, dtype=jnp.float64) for v in
+                                            (radius, rate, diffusion, degradation))
+    inverse_rate = jnp.where(jnp.isinf(rate), 0.0, 1.0 / jnp.where(rate > 0.0, rate, 1.0))
+    shift = degradation + jnp.dot(flow, flow) / (4.0 * diffusion)
+    q0 = _cx(jnp.maximum(jnp.sqrt(shift / diffusion), 1e-12 / radius))[None]
+
+    def one(source):
+        return jnp.real(flow_transform(q0, source, centre, radius, inverse_rate, diffusion, flow))[0]
+
+    return jax.vmap(one)(sources)

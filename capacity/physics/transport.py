@@ -1,0 +1,112 @@
+"""Response-layer routing for uniform flow and reactive (partially absorbing) receivers.
+
+:func:`lone_arrays` is the ``lone`` model when the layout has a flow or a reactive receiver: every receiver as if
+alone, by closed forms where they exist (passive sphere in a flow: exact; reactive sphere without flow:
+:mod:`capacity.physics.reactive`) and the Laplace-domain series of :mod:`capacity.physics.flow` otherwise (exact for
+absorbing spheres in a flow, an approximation for reactive spheres in a flow). :func:`validity_notes` says where
+these models were measured against the particle simulator.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from capacity.errors import InputError
+
+#: validated ranges of the flow and reactive models (studies/validate_flow_walls.py, results/validation/)
+VALIDATED = {
+    "max_peclet": 10.0,  # |v| a / D of absorbing spheres, flow toward, away from and across
+    "max_peclet_reactive": 2.0,  # reactive spheres in a flow (the model leaves out the reflections' drift term)
+}
+
+
+def has_transport(lay) -> bool:
+    """True when the layout has a flow or a reactive receiver (fields ``flow`` and ``rates`` of the Layout)."""
+    flow = getattr(lay, "flow", None)
+    rates = getattr(lay, "rates", None)
+    moving = flow is not None and bool(np.any(np.asarray(flow) != 0.0))
+    reactive = rates is not None and bool(np.any(np.isfinite(rates) & ~lay.passive))
+    return moving or reactive
+
+
+def _refuse_combinations(lay) -> None:
+    walls = getattr(lay, "walls", None)
+    pulses = getattr(lay, "pulses", None)
+    if walls is not None or (pulses is not None and np.any(np.asarray(pulses) > 0.0)):
+        raise InputError("channel.response", "lone/shadowed",
+                         "the closed-form models do not combine walls or release pulses with a flow or reactive "
+                         "receivers yet", 'use channel.response = "particles" for this layout')
+
+
+def lone_arrays(lay, memory: int):
+    """``(hits (E, R, L+1), tail (E, R))`` of every receiver as if alone, with flow and reactive receivers."""
+    from capacity.physics.flow import flow_hits
+    from capacity.physics.lone import lone_hits
+    from capacity.physics.reactive import reactive_hits
+
+    _refuse_combinations(lay)
+    rates = np.where(lay.passive, np.inf, np.asarray(lay.rates, dtype=float))
+    flow = np.asarray(lay.flow, dtype=float)
+    if np.any(flow != 0.0):
+        from capacity.physics.flow import MAX_PECLET, peclet_numbers
+
+        pe = np.where(lay.passive, 0.0, peclet_numbers(lay.radii, flow, lay.diffusion))
+        if pe.max() > MAX_PECLET:
+            j = int(np.argmax(pe))
+            raise InputError("medium.flow", flow.tolist(),
+                             f"gives receiver {lay.receiver_names[j]} a Peclet number |v| a / D = {pe[j]:.3g} above "
+                             f"{MAX_PECLET:g}, beyond the precision of the flow series",
+                             'use channel.response = "particles", or a slower flow')
+        hits, tail = flow_hits(lay.emitters, lay.centres, lay.radii, lay.passive, rates, lay.offsets,
+                               lay.diffusion, lay.degradation, flow, lay.symbol_interval, memory=memory)
+        return np.asarray(hits, dtype=np.float64), np.asarray(tail, dtype=np.float64)
+    hits, tail = lone_hits(lay.emitters, lay.centres, lay.radii, lay.passive, lay.offsets, lay.diffusion,
+                           lay.degradation, lay.symbol_interval, memory=memory)
+    hits, tail = np.array(hits, dtype=np.float64), np.array(tail, dtype=np.float64)
+    reactive = np.flatnonzero(np.isfinite(rates))
+    if reactive.size:
+        rh, rt = reactive_hits(lay.emitters, lay.centres[reactive], lay.radii[reactive], rates[reactive],
+                               lay.diffusion, lay.degradation, lay.symbol_interval, memory=memory)
+        hits[:, reactive], tail[:, reactive] = np.asarray(rh), np.asarray(rt)
+    return hits, tail
+
+
+def validity_notes(lay) -> list[str]:
+    """Sentences for layouts outside the measured range of the flow / reactive models (empty inside it)."""
+    from capacity.physics.flow import MAX_PECLET, peclet_numbers
+
+    notes: list[str] = []
+    flow = np.asarray(getattr(lay, "flow", np.zeros(3)), dtype=float)
+    if not np.any(flow != 0.0):
+        return notes
+    rates = np.where(lay.passive, np.inf, np.asarray(lay.rates, dtype=float))
+    pe = peclet_numbers(lay.radii, flow, lay.diffusion)
+    for j in np.flatnonzero(~lay.passive):
+        reactive = np.isfinite(rates[j])
+        limit = VALIDATED["max_peclet_reactive" if reactive else "max_peclet"]
+        if pe[j] > MAX_PECLET:
+            notes.append(f"receiver {lay.receiver_names[j]}: Peclet number {pe[j]:.3g} is above {MAX_PECLET:g}, "
+                         "where the flow series loses precision; use the particles model")
+        elif pe[j] > limit:
+            kind = "reactive" if reactive else "absorbing"
+            notes.append(f"receiver {lay.receiver_names[j]} ({kind}): Peclet number {pe[j]:.3g} is above the "
+                         f"validated {limit:g}")
+    return notes
+
+
+def shadowed_arrays(lay, memory: int, options: dict, lone, particles):
+    """The ``shadowed`` model with a flow or reactive receivers: ``(hits, tail, stderr, notes)``.
+
+    With at most one absorbing or reactive receiver nothing shadows it, and the lone model is the answer (passive
+    receivers never perturb the field). With several, the renewal model is not extended to these boundaries: the
+    particle simulator (``particles``, the response layer's model function) is used, with a note.
+    """
+    notes = validity_notes(lay)
+    if np.count_nonzero(~lay.passive) <= 1:
+        hits, tail = lone(memory)
+        return hits, tail, None, ["shadowed model: at most one absorbing or reactive receiver, so the lone model "
+                                  "(flow / reactive closed forms) is exact for it"] + notes
+    hits, tail, stderr, more = particles(lay, memory, options, lone)
+    return hits, tail, stderr, ["shadowed model: several absorbing or reactive receivers with a flow or a reactive "
+                                "surface are not covered by the renewal model: switched to the particle "
+                                "simulator"] + more + notes
