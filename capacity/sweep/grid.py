@@ -43,7 +43,8 @@ class Axis(NamedTuple):
 
     @property
     def numeric(self) -> bool:
-        return self.field.kind in NUMERIC
+        """Every value a number (so the axis has a numeric coordinate)."""
+        return all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in self.values)
 
     def coordinate(self, value):
         """The value as a dataset coordinate / CSV cell: a float for numbers, text otherwise."""
@@ -67,7 +68,11 @@ def _scalar(item: str, kind: str, text: str, option: str):
         _fail(text, "has an empty value", "separate values with single commas, e.g. 3um,5um", option)
     if kind in DIMENSIONS:
         try:
-            return to_si(item, kind, option)
+            number = float(item)  # a bare number on the command line is SI, as in scenario files
+        except ValueError:
+            number = None
+        try:
+            return to_si(item if number is None else number, kind, option)
         except InputError as exc:
             _fail(text, f"{item!r} is not {kind} ({exc.problem})", exc.fix or "give a value with units", option)
     if kind in ("number", "int", "memory"):
@@ -107,6 +112,8 @@ def _range(spec: str, kind: str, text: str, option: str) -> tuple[tuple, str]:
     parts = spec.split(":")
     if len(parts) not in (3, 4) or (len(parts) == 4 and parts[3].strip().lower() not in ("log", "lin", "linear")):
         _fail(text, "is not LO:HI:N or LO:HI:N:log", "write e.g. 50ms:400ms:4:log", option)
+    if kind == "memory":
+        kind = "int"
     if kind not in NUMERIC:
         _fail(text, "a range needs a numeric field", "list the values instead, e.g. a,b,c", option)
     lo = _scalar(parts[0], "number" if kind == "int" else kind, text, option)

@@ -1,0 +1,335 @@
+"""``capacity sweep``: grid parsing, point ids, resumable storage, reproducibility across workers, bad input.
+
+Outside references: numpy.linspace / numpy.geomspace for the grids; an uninterrupted in-process run for the
+resumed and the 2-worker runs (same ids and seeds must give the same numbers, to the last bit); the loader's own
+validation for invalid points.
+"""
+
+from __future__ import annotations
+
+import csv
+import json
+import os
+import signal
+import socket
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from capacity.cli import main
+from capacity.errors import InputError
+from capacity.sweep import grid_points, make_spec, parse_axis, point_id, run_sweep
+
+REPO = Path(__file__).resolve().parent.parent
+CHEAP = """
+name = "one bead, one sender (sweep test)"
+
+[medium]
+diffusion = "79.4 um^2/s"
+
+[[emitter]]
+name = "tx"
+position = ["0 um", "0 um", "0 um"]
+
+[[receiver]]
+name = "rx"
+centre = ["10 um", "0 um", "0 um"]
+radius = "5 um"
+
+[channel]
+symbol_interval = "200 ms"
+memory = 1
+background = 0.5
+response = "lone"
+seed = 3
+
+[signalling]
+scheme = "amplitude"
+levels = 2
+peak = 100
+budget = 50
+"""
+# cheap estimator settings: the point of these tests is the machinery, not the rates' accuracy
+SETTINGS = {"symbols": 500, "runs": 2, "bound_samples": 256, "window_samples": 64, "law_search": False}
+CLI_SETTINGS = ["--symbols", "500", "--runs", "2", "--bound-samples", "256", "--window-samples", "64",
+                "--no-law-search"]
+VARY = ["channel.symbol_interval=100ms:300ms:3", "signalling.budget=20,50"]
+
+
+@pytest.fixture(scope="module")
+def scenario_file(tmp_path_factory):
+    path = tmp_path_factory.mktemp("sweep") / "cheap.toml"
+    path.write_text(CHEAP)
+    return path
+
+
+@pytest.fixture(scope="module")
+def cache_dir(tmp_path_factory):
+    return str(tmp_path_factory.mktemp("jax-cache"))
+
+
+@pytest.fixture(scope="module")
+def reference(scenario_file, cache_dir, tmp_path_factory):
+    """An uninterrupted serial run (one worker process) of the 3 x 2 grid: {point_id: row}. Every later run here
+    uses worker processes with the same settings, so they share its compiled kernels (the compilation cache)."""
+    out = tmp_path_factory.mktemp("reference")
+    spec = make_spec(str(scenario_file), VARY, settings=SETTINGS)
+    summary = run_sweep(spec, out, workers=1, cache_dir=cache_dir, progress=False, plots=True, log=lambda t: None)
+    assert summary["points_computed"] == 6 and summary["points_failed"] == 0
+    return out, _rows(out)
+
+
+def _rows(folder) -> dict:
+    with open(Path(folder) / "points.csv", newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    ids = [r["point_id"] for r in rows]
+    assert len(ids) == len(set(ids)), "a point is stored twice"
+    return {r["point_id"]: r for r in rows}
+
+
+def _env(cache_dir):
+    env = dict(os.environ)
+    env["CAPACITY_CACHE_DIR"] = cache_dir
+    return env
+
+
+# -- grid text ---------------------------------------------------------------------------------------------------
+def test_ranges_match_numpy_spacing():
+    # reference: numpy.geomspace / numpy.linspace on the SI ends (50 ms = 0.05 s, 2 um = 2e-6 m)
+    ax = parse_axis("channel.symbol_interval=50ms:400ms:4:log")
+    np.testing.assert_array_equal(ax.values, np.geomspace(0.05, 0.4, 4))
+    assert ax.label == "symbol_interval" and ax.spacing == "log"
+    ax = parse_axis("receiver[0].radius=2 um:6 um:5")
+    np.testing.assert_array_equal(ax.values, np.linspace(2e-6, 6e-6, 5))
+    assert parse_axis("signalling.budget=10,20 molecules,1e2").values == (10.0, 20.0, 100.0)
+    assert parse_axis("channel.memory=1:4:4").values == (1, 2, 3, 4)
+    ax = parse_axis("emitter[0].position=0um,0um,0um;1um,2um,0um")
+    assert ax.values == ((0.0, 0.0, 0.0), (1e-6, 2e-6, 0.0))
+    assert parse_axis("receiver[*].centre[1]=1um,2um").label == "centre_y"
+    assert parse_axis("channel.response=lone,shadowed").values == ("lone", "shadowed")
+
+
+@pytest.mark.parametrize("text, expect", [
+    ("channel.symbol_intervl=50ms:400ms:3", 'did you mean "channel.symbol_interval"'),
+    ("channel.symbol_interval=50kg:400ms:3", "is not time"),
+    ("channel.symbol_interval=5ms:5ms:3", "empty"),
+    ("channel.symbol_interval=400ms:50ms:3", "reversed"),
+    ("channel.symbol_interval=50ms:400ms:0", "give N >= 1"),
+    ("channel.symbol_interval=0ms:400ms:3:log", "log spacing needs LO > 0"),
+    ("signalling.budget=10,,20", "empty value"),
+    ("signalling.budget=10,10", "twice"),
+    ("channel.memory=1:4:3", "not whole numbers"),
+    ("receiver[3].radius=5um", "has 1 receivers"),
+])
+def test_bad_vary_is_a_named_error(text, expect, scenario_file, tmp_path, capsys):
+    out = tmp_path / "never"
+    code = main(["sweep", str(scenario_file), "--vary", text, "--out", str(out), "--workers", "0"])
+    err = capsys.readouterr().err
+    assert code == 2
+    assert "--vary" in err and expect in err, err
+    assert not out.exists()
+
+
+def test_invalid_point_and_huge_grid_are_refused_before_anything_is_written(scenario_file, tmp_path, capsys):
+    out = tmp_path / "never"
+    # radius 12 um swallows the emitter 10 um away: the loader's own validator refuses that point
+    code = main(["sweep", str(scenario_file), "--vary", "receiver[0].radius=4um,12um", "--out", str(out)])
+    err = capsys.readouterr().err
+    assert code == 2 and "--vary" in err and "receiver[0].radius=1.2e-05" in err and "invalid scenario" in err
+    code = main(["sweep", str(scenario_file), "--vary", "signalling.budget=1:400:400", "--vary",
+                 "signalling.peak=100:500:400", "--out", str(out)])
+    err = capsys.readouterr().err
+    assert code == 2 and "160000 points" in err and "--force" in err
+    assert not out.exists()
+
+
+def test_sweep_table_in_scenario_file(tmp_path):
+    path = tmp_path / "with_sweep.toml"
+    path.write_text(CHEAP + '\n[sweep]\nmeasure = "response"\n[sweep.vary]\n"receiver[0].radius" = ["3 um", '
+                    '"4 um"]\n"channel.symbol_interval" = "100ms:200ms:2"\n')
+    spec = make_spec(str(path), ["signalling.budget=20,30"])
+    assert spec.measure == "response"
+    assert [ax.label for ax in spec.axes] == ["radius", "symbol_interval", "budget"]
+    assert spec.axes[0].values == (3e-6, 4e-6)
+    with pytest.raises(InputError, match="sweep.mesure"):
+        path.write_text(CHEAP + '\n[sweep]\nmesure = "rate"\n')
+        make_spec(str(path), VARY)
+
+
+# -- ids and seeds -----------------------------------------------------------------------------------------------
+def test_point_ids_stable_and_distinct(scenario_file):
+    spec = make_spec(str(scenario_file), VARY, settings=SETTINGS)
+    points = grid_points(spec.data, list(spec.axes), measure=spec.measure, settings=spec.settings,
+                         base_seed=spec.base_seed)
+    ids = [p.point_id for p in points]
+    assert len(set(ids)) == 6
+    # the same values written differently (units vs SI numbers) are the same point
+    same = make_spec(str(scenario_file), ["channel.symbol_interval=0.1:0.3:3", "signalling.budget=20,50"],
+                     settings=SETTINGS)
+    again = grid_points(same.data, list(same.axes), measure=same.measure, settings=same.settings,
+                        base_seed=same.base_seed)
+    assert [p.point_id for p in again] == ids
+    assert [p.seed for p in again] == [p.seed for p in points]
+    # other settings are other points
+    assert point_id(points[0].scenario, "rate", {**spec.settings, "n_symbols": 501}) != ids[0]
+    # stable across processes (hash randomisation must not enter)
+    code = ("from capacity.sweep import make_spec, grid_points; import sys; s = make_spec(sys.argv[1], "
+            f"{VARY!r}, settings={SETTINGS!r}); print(','.join(p.point_id for p in grid_points(s.data, "
+            "list(s.axes), measure=s.measure, settings=s.settings, base_seed=s.base_seed)))")
+    proc = subprocess.run([sys.executable, "-c", code, str(scenario_file)], capture_output=True, text=True,
+                          cwd=REPO, env={**os.environ, "PYTHONHASHSEED": "123"}, timeout=120)
+    assert proc.stdout.strip().split(",") == ids, proc.stderr
+
+
+# -- storage, resume, reproducibility ----------------------------------------------------------------------------
+def test_outputs_of_a_finished_sweep(reference):
+    import xarray as xr
+
+    out, rows = reference
+    assert len(rows) == 6
+    ds = xr.open_dataset(out / "sweep.nc", engine="scipy")
+    assert ds["bits_per_second"].dims == ("symbol_interval", "budget")
+    np.testing.assert_array_equal(ds["symbol_interval"].values, np.linspace(0.1, 0.3, 3))
+    for pid, row in rows.items():
+        i = int(np.argmin(abs(ds["symbol_interval"].values - float(row["symbol_interval"]))))
+        j = int(np.argmin(abs(ds["budget"].values - float(row["budget"]))))
+        assert ds["point_id"].values[i, j] == pid
+        assert ds["information_rate"].values[i, j] == float(row["information_rate"])
+    ds.close()
+    record = json.loads((out / "sweep.json").read_text())
+    assert record["points_total"] == 6 and len(record["points"]) == 6
+    assert {p["point_id"]: p["seed"] for p in record["points"]} == {k: int(r["seed"]) for k, r in rows.items()}
+    best = max(rows.values(), key=lambda r: float(r["bits_per_second"]))
+    assert record["best"]["bits_per_second"]["point_id"] == best["point_id"]
+    assert (out / "sweep_bits_per_second.png").stat().st_size > 1000
+
+
+def test_finished_sweep_computes_nothing(reference, scenario_file, capsys):
+    out, rows = reference
+    before = (out / "points.csv").read_bytes()
+    code = main(["sweep", str(scenario_file), *sum((["--vary", v] for v in VARY), []), *CLI_SETTINGS, "--out",
+                 str(out), "--json", "--no-plots"])
+    summary = json.loads(capsys.readouterr().out)
+    assert code == 0
+    assert summary["points_computed"] == 0 and summary["points_skipped"] == 6 and summary["points_total"] == 6
+    assert (out / "points.csv").read_bytes() == before
+
+
+def test_extended_grid_computes_only_new_points(scenario_file, cache_dir, tmp_path):
+    def run(budgets):
+        spec = make_spec(str(scenario_file), ["channel.symbol_interval=100ms:200ms:2", f"signalling.budget={budgets}"],
+                         measure="response")
+        return run_sweep(spec, tmp_path, workers=0, cache_dir=cache_dir, progress=False, plots=False,
+                         log=lambda t: None)
+
+    first = run("20,50")
+    assert first["points_computed"] == 4 and first["points_skipped"] == 0
+    rows = _rows(tmp_path)
+    summary = run("20,50,80")
+    assert summary["points_skipped"] == 4 and summary["points_computed"] == 2
+    extended = _rows(tmp_path)
+    assert len(extended) == 6 and all(extended[k] == v for k, v in rows.items())
+
+
+def test_two_workers_give_the_serial_numbers(reference, scenario_file, cache_dir, tmp_path):
+    # reference: the one-worker run; each point's seed comes from its id, so workers and order do not matter
+    _, rows = reference
+    spec = make_spec(str(scenario_file), VARY, settings=SETTINGS)
+    summary = run_sweep(spec, tmp_path, workers=2, cache_dir=cache_dir, progress=False, plots=False,
+                        log=lambda t: None)
+    assert summary["points_computed"] == 6
+    two = _rows(tmp_path)
+    assert set(two) == set(rows)
+    for pid, row in rows.items():
+        for key in ("information_rate", "stderr", "lower_bound", "upper_bound", "bits_per_second", "seed"):
+            assert two[pid][key] == row[key], (pid, key)
+
+
+def test_killed_sweep_resumes_with_every_point_once(reference, scenario_file, cache_dir, tmp_path):
+    # reference: the uninterrupted run; SIGKILL a real sweep (its process group: driver, scheduler and worker)
+    # after its first stored points
+    _, rows = reference
+    out = tmp_path / "killed"
+    cmd = [sys.executable, "-m", "capacity.cli", "sweep", str(scenario_file), *sum((["--vary", v] for v in VARY), []),
+           *CLI_SETTINGS, "--out", str(out), "--workers", "1", "--quiet", "--no-plots"]
+    proc = subprocess.Popen(cmd, cwd=REPO, env=_env(cache_dir), stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
+                            start_new_session=True)
+    deadline = time.monotonic() + 180
+    stored = 0
+    while time.monotonic() < deadline and proc.poll() is None:
+        path = out / "points.csv"
+        stored = path.read_text().count("\n") - 1 if path.exists() else 0
+        if stored >= 2:
+            break
+        time.sleep(0.05)
+    assert proc.poll() is None, "the sweep ended before it could be killed: " + proc.stderr.read().decode()
+    os.killpg(proc.pid, signal.SIGKILL)
+    proc.wait(timeout=30)
+    partial = _rows(out)
+    assert 2 <= len(partial) < 6
+    again = subprocess.run(cmd[:-2] + ["--json"], cwd=REPO, env=_env(cache_dir), capture_output=True, text=True,
+                           timeout=300)
+    assert again.returncode == 0, again.stderr
+    summary = json.loads(again.stdout)
+    assert summary["points_skipped"] == len(partial) and summary["points_computed"] == 6 - len(partial)
+    resumed = _rows(out)
+    assert set(resumed) == set(rows)
+    for pid, row in rows.items():
+        assert {k: v for k, v in resumed[pid].items() if k != "seconds"} == \
+               {k: v for k, v in row.items() if k != "seconds"}
+
+
+# -- failures ----------------------------------------------------------------------------------------------------
+def test_failing_point_is_recorded_and_the_sweep_goes_on(scenario_file, cache_dir, tmp_path, capsys):
+    # memory "auto" with a tolerance of 1e-9: the lone hitting density decays like t^(-3/2), so no memory up to
+    # the cap reaches it and channel_response raises for that point only
+    path = tmp_path / "auto.toml"
+    path.write_text(CHEAP.replace("memory = 1", 'memory = "auto"'))
+    out = tmp_path / "fail"
+    code = main(["sweep", str(path), "--measure", "response", "--vary", "channel.memory_tolerance=0.05,1e-9",
+                 "--out", str(out), "--workers", "0", "--json", "--compile-cache", cache_dir])
+    captured = capsys.readouterr()
+    summary = json.loads(captured.out)
+    assert code == 1
+    assert summary["points_failed"] == 1 and summary["points_computed"] == 1
+    assert "memory_tolerance=1e-09" in captured.err and "channel.memory" in captured.err
+    with open(out / "failures.csv", newline="") as fh:
+        failed = list(csv.DictReader(fh))
+    assert len(failed) == 1 and float(failed[0]["memory_tolerance"]) == 1e-9 and failed[0]["error"]
+    assert len(_rows(out)) == 1
+    record = json.loads((out / "sweep.json").read_text())
+    assert record["points_failed"] == 1
+
+
+# -- cluster address ---------------------------------------------------------------------------------------------
+def test_unreachable_scheduler_is_a_named_error_within_10_s(scenario_file, tmp_path):
+    with socket.socket() as s:  # a free local port nobody listens on
+        s.bind(("127.0.0.1", 0))
+        port = s.getsockname()[1]
+    out = tmp_path / "never"
+    started = time.monotonic()
+    proc = subprocess.run([sys.executable, "-m", "capacity.cli", "sweep", str(scenario_file), "--vary", VARY[1],
+                           "--out", str(out), "--scheduler", f"tcp://127.0.0.1:{port}"], cwd=REPO,
+                          capture_output=True, text=True, timeout=60)
+    elapsed = time.monotonic() - started
+    assert proc.returncode == 2, proc.stderr
+    assert "--scheduler" in proc.stderr and "no scheduler answered" in proc.stderr
+    assert "Traceback" not in proc.stderr
+    assert elapsed < 10.0
+    assert not out.exists()
+
+
+@pytest.mark.slow
+def test_in_process_run_gives_the_worker_numbers(reference, scenario_file, cache_dir, tmp_path):
+    # reference: the one-worker run (single-threaded XLA); here the points run in the test process
+    _, rows = reference
+    spec = make_spec(str(scenario_file), VARY, settings=SETTINGS)
+    run_sweep(spec, tmp_path, workers=0, cache_dir=cache_dir, progress=False, plots=False, log=lambda t: None)
+    here = _rows(tmp_path)
+    for pid, row in rows.items():
+        for key in ("information_rate", "stderr", "lower_bound", "upper_bound", "bits_per_second", "seed"):
+            assert here[pid][key] == row[key], (pid, key)
