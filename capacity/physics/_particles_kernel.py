@@ -76,6 +76,13 @@ class Geometry(NamedTuple):
     n_total: jax.Array  # int64 molecules of this emitter
     adapt: jax.Array  # c in m = d^2/(c D dt); 0 means fixed steps of one tick
     correction: jax.Array  # int: index into CORRECTIONS
+    # reflecting walls (see _reflect) and the release pulse; the defaults give none of either
+    n_walls: jax.Array | int = 0  # 0, 1 (fluid where z > wall_lower) or 2 (wall_lower < z < wall_upper)
+    wall_normal: jax.Array | tuple = (0.0, 0.0, 1.0)  # (3,) unit normal of the first wall, z = normal . x
+    wall_lower: jax.Array | float = 0.0  # z of the first wall, m
+    wall_upper: jax.Array | float = 0.0  # z of the second wall, m (channel only)
+    wall_scale: jax.Array | float = float("inf")  # d_min of the step rule is capped at this (channel width)
+    pulse: jax.Array | float = 0.0  # release window in ticks: each molecule starts at a uniform time in it
 
 
 class State(NamedTuple):
@@ -94,6 +101,7 @@ class State(NamedTuple):
     iterations: jax.Array  # () int64 kernel iterations (buffer occupancy = steps / (iterations * buffer))
     tail_sq: jax.Array  # (R,) float64 sum of squares of the survivors' lone capture probabilities
     positions: jax.Array  # (store, 3) final positions of stored survivors (NaN otherwise)
+    head: jax.Array  # (C,) float64 fraction of a tick by which the release follows the start tick (first step)
 
 
 def initial_state(cfg: Config, geom: Geometry, n_spheres: int) -> State:
@@ -114,6 +122,7 @@ def initial_state(cfg: Config, geom: Geometry, n_spheres: int) -> State:
         iterations=jnp.zeros((), jnp.int64),
         tail_sq=jnp.zeros(n_spheres),
         positions=jnp.full((cfg.store, 3), jnp.nan),
+        head=jnp.zeros(c),
     )
 
 
@@ -160,13 +169,39 @@ def _gaussian_and_uniform(stream, nstep, n_uniform):
     return z, u[:, 4:]
 
 
+_RELEASE_SALT = np.uint64(0xD1B54A32D192ED03)
+
+
 def _refill(geom: Geometry, new_id):
-    """Streams and lifetimes (ticks) of newly loaded molecules."""
+    """Streams, lifetimes (absolute ticks), start ticks and release fractions of newly loaded molecules.
+
+    The release time is ``u * pulse`` ticks (u uniform, from its own word ``mix64(stream ^ salt)``, so a pulse
+    leaves the lifetime and step words unchanged); the molecule starts at the whole tick below it and its first
+    step is shorter by the fraction ``head``. Lifetimes count from the release.
+    """
     stream = mix64(geom.base_key + _GOLDEN * (new_id.astype(jnp.uint64) + np.uint64(1)))
     e = -jnp.log(_unit(mix64(stream)))
     k_pos = geom.degradation > 0.0
-    life = jnp.where(k_pos, e / jnp.where(k_pos, geom.degradation * geom.dt, 1.0), jnp.inf)
-    return stream, life
+    release = jnp.asarray(geom.pulse, jnp.float64) * _unit(mix64(stream ^ _RELEASE_SALT))
+    release = jnp.where(geom.pulse > 0.0, release, 0.0)
+    start = jnp.floor(release)
+    life = release + jnp.where(k_pos, e / jnp.where(k_pos, geom.degradation * geom.dt, 1.0), jnp.inf)
+    return stream, life, start.astype(jnp.int64), release - start
+
+
+def _reflect(x, geom: Geometry):
+    """Fold end points (C, 3) back into the fluid across reflecting walls (exact for the reflected Brownian
+    motion: the folded free Gaussian step is the walled transition law). One wall: ``z -> lower + |z - lower|``;
+    channel of width W: ``z -> lower + W - |((z - lower) mod 2W) - W|``; no walls: unchanged."""
+    normal = jnp.asarray(geom.wall_normal, jnp.float64)
+    lower = jnp.asarray(geom.wall_lower, jnp.float64)
+    z = x @ normal
+    chan = geom.n_walls == 2
+    width = jnp.where(chan, jnp.asarray(geom.wall_upper, jnp.float64) - lower, 1.0)
+    z_chan = lower + width - jnp.abs(jnp.mod(z - lower, 2.0 * width) - width)
+    z_one = lower + jnp.abs(z - lower)
+    z_new = jnp.where(chan, z_chan, jnp.where(geom.n_walls == 1, z_one, z))
+    return x + (z_new - z)[:, None] * normal[None, :]
 
 
 def _iteration(cfg: Config, geom: Geometry, s: State) -> State:
@@ -179,7 +214,7 @@ def _iteration(cfg: Config, geom: Geometry, s: State) -> State:
     d1 = r1 - geom.radii
 
     # step length in ticks
-    dmin = jnp.min(jnp.where(geom.absorbing, d1, jnp.inf), axis=1)
+    dmin = jnp.minimum(jnp.min(jnp.where(geom.absorbing, d1, jnp.inf), axis=1), geom.wall_scale)
     scale = jnp.where(geom.adapt > 0.0, geom.adapt * geom.diffusion * geom.dt, 1.0)
     m_f = jnp.where(geom.adapt > 0.0, jnp.floor(dmin * dmin / scale), 1.0)
     m = jnp.clip(m_f, 1.0, n_slot.astype(jnp.float64)).astype(jnp.int64)
@@ -194,7 +229,8 @@ def _iteration(cfg: Config, geom: Geometry, s: State) -> State:
     death_step = life_floor <= s.t
     cap = jnp.minimum(jnp.minimum(next_bound, next_sample), jnp.where(death_step, big, life_floor))
     m = jnp.minimum(m, cap - s.t)
-    h_ticks = jnp.where(death_step, s.life - s.t.astype(jnp.float64), m.astype(jnp.float64))
+    head = jnp.where(s.nstep == 0, s.head, 0.0)  # a pulsed release starts between ticks
+    h_ticks = jnp.where(death_step, s.life - s.t.astype(jnp.float64) - head, m.astype(jnp.float64) - head)
     h = h_ticks * geom.dt
 
     z, u = _gaussian_and_uniform(s.key, s.nstep, n_sph)
@@ -212,6 +248,8 @@ def _iteration(cfg: Config, geom: Geometry, s: State) -> State:
     slot = jnp.clip(s.t // n_slot, 0, cfg.memory)
     counts = s.counts.at[which, slot].add(absorbed.astype(jnp.int64))
 
+    # absorption was tested on the unfolded path (image spheres included); the rest sees the folded end point
+    x2, r2, d2 = lax.cond(geom.n_walls > 0, lambda: _folded(x2, geom), lambda: (x2, r2, d2))
     died = active & death_step & ~absorbed
     alive = active & ~absorbed & ~died
     t2 = s.t + m
@@ -233,15 +271,15 @@ def _iteration(cfg: Config, geom: Geometry, s: State) -> State:
     rank = jnp.cumsum(free.astype(jnp.int64)) - 1
     new_id = s.next_id + rank
     take = free & (new_id < geom.n_total)
-    mol_key, new_life = lax.cond(
+    mol_key, new_life, new_start, new_head = lax.cond(
         jnp.any(take),
         lambda: _refill(geom, new_id),
-        lambda: (s.key, s.life),
+        lambda: (s.key, s.life, jnp.zeros_like(s.t), s.head),
     )
     n_free = jnp.sum(free.astype(jnp.int64))
     return State(
         x=jnp.where(take[:, None], geom.emitter[None, :], x2),
-        t=jnp.where(take, 0, t2),
+        t=jnp.where(take, new_start, t2),
         life=jnp.where(take, new_life, s.life),
         key=jnp.where(take, mol_key, s.key),
         mid=jnp.where(take, new_id, jnp.where(keep, s.mid, -1)),
@@ -255,7 +293,15 @@ def _iteration(cfg: Config, geom: Geometry, s: State) -> State:
         ticks=s.ticks + jnp.sum(jnp.where(active, h_ticks, 0.0)),
         iterations=s.iterations + 1,
         positions=positions,
+        head=jnp.where(take, new_head, s.head),
     )
+
+
+def _folded(x2, geom: Geometry):
+    x = _reflect(x2, geom)
+    rel = x[:, None, :] - geom.centres[None, :, :]
+    r = jnp.sqrt(jnp.sum(rel * rel, axis=-1))
+    return x, r, r - geom.radii
 
 
 @partial(jax.jit, static_argnums=0)

@@ -93,6 +93,8 @@ def simulate_hits(
     seed: int,
     time_step: float | None = None,
     progress: bool = False,
+    walls=None,
+    pulses=None,
 ):
     """Hit probabilities of every emitter-receiver pair by Brownian simulation of the whole layout.
 
@@ -120,6 +122,13 @@ def simulate_hits(
         Molecules far from every absorbing surface take longer steps (whole multiples of dt, about
         ``d^2/(16 D)``), always ending on slot boundaries and passive sampling instants.
     progress : show a tqdm progress bar (one update per kernel call).
+    walls : :class:`capacity.physics.images.WallGeometry` (one reflecting wall or a channel) or None. Every step's
+        end point is folded back into the fluid (exact for reflected Brownian motion); each absorbing sphere is
+        tested together with its mirror images (one per wall; in a channel also the two-bounce images), since a
+        contact of the unfolded path with an image is a contact of the reflected path with the sphere. In a
+        channel the step rule's distance is capped at the width, so steps stay well inside one bounce.
+    pulses : (E,) s or None: release durations; molecule ``n`` of emitter ``i`` is released at a uniform random
+        time in ``[0, pulses[i]]`` (a rectangular pulse; exact: its first step is shortened to the next tick).
 
     Returns
     -------
@@ -164,6 +173,8 @@ def simulate_hits(
         seed=seed,
         time_step=time_step,
         progress=progress,
+        walls=walls,
+        pulses=pulses,
     )
     return sim.hits, sim.tail, sim.stderr
 
@@ -187,6 +198,8 @@ def _simulate(
     correction: str = "radial",
     buffer: int = BUFFER,
     block: int = BLOCK,
+    walls=None,
+    pulses=None,
 ) -> Simulation:
     """:func:`simulate_hits` with the knobs tests and benchmarks need.
 
@@ -196,10 +209,15 @@ def _simulate(
     buffer, block : molecules advanced together (static: a new value compiles a new kernel) and iterations per
         kernel call (traced).
     """
+    n_real = np.shape(centres)[0] if np.ndim(centres) == 2 else 0
+    centres, radii, passive, sample_offsets, owner = _with_wall_images(
+        emitters, centres, radii, passive, sample_offsets, walls)
     inp = check_inputs(
         emitters, centres, radii, passive, sample_offsets, diffusion, degradation, symbol_interval, memory,
         particles, seed, time_step,
     )
+    pulse_s = _pulse_array(pulses, inp.emitters.shape[0], inp.symbol_interval)
+    wall_fields = _wall_fields(walls)
     if correction not in _k.CORRECTIONS:
         raise ValueError(f"correction must be one of {_k.CORRECTIONS}")
     dt_wanted = inp.time_step if inp.time_step is not None else auto_time_step(inp)
@@ -245,6 +263,8 @@ def _simulate(
             n_total=jnp.asarray(inp.particles, jnp.int64),
             adapt=jnp.asarray(float(adapt)),
             correction=jnp.asarray(_k.CORRECTIONS.index(correction)),
+            pulse=jnp.asarray(pulse_s[i] / dt),
+            **wall_fields,
         )
         state = _k.initial_state(cfg, geom, n_pad)
         done_before = 0
@@ -278,12 +298,73 @@ def _simulate(
     # passive spheres sampled at t = 0 (offset 0, slot 0): inside iff the emitter is inside
     for j in np.flatnonzero(inp.passive & (offsets == 0)):
         inside = np.linalg.norm(inp.emitters - inp.centres[j], axis=1) < inp.radii[j]
-        counts[:, j, 0] = np.where(inside, float(inp.particles), 0.0)
+        counts[:, j, 0] = np.where(inside & (pulse_s == 0.0), float(inp.particles), 0.0)  # pulsed: none out yet
     n = float(inp.particles)
+    if owner is not None:  # image spheres count for the sphere they mirror
+        counts, tail = _fold_images(counts, owner, n_real), _fold_images(tail, owner, n_real)
+        tail_se = np.sqrt(_fold_images(tail_se**2, owner, n_real))
+        offsets = offsets[:n_real]
     hits = counts / n
     stderr = np.sqrt(hits * (1.0 - hits) / n)
     return Simulation(hits, tail, stderr, dt, n_slot, offsets * dt, tail_se, positions, ids, steps, ticks, survivors,
                       occupancy)
+
+
+def _with_wall_images(emitters, centres, radii, passive, sample_offsets, walls):
+    """Spheres with the mirror images of the absorbing ones appended (one per wall; in a channel also the
+    two-bounce images), and ``owner`` (index of the real sphere of every sphere), or ``owner = None``."""
+    if walls is None:
+        return centres, radii, passive, sample_offsets, None
+    from capacity.errors import InputError
+    from capacity.physics.images import image_points, wall_distances
+
+    c = np.asarray(centres, dtype=float).reshape(-1, 3)
+    r = np.asarray(radii, dtype=float).reshape(-1)
+    pa = np.asarray(passive, dtype=bool).reshape(-1)
+    off = np.asarray(sample_offsets, dtype=float).reshape(-1)
+    if np.any(wall_distances(emitters, walls) <= 0.0):
+        raise InputError("emitters", np.asarray(emitters).tolist(), "an emitter lies on or behind a wall",
+                         "place every emitter in the fluid")
+    if np.any(wall_distances(c, walls) - r[:, None] <= 0.0):
+        raise InputError("centres", c.tolist(), "a wall touches or cuts a sphere", "keep every sphere in the fluid")
+    cells = [-1, 1, -2, 2] if walls.channel else [-1]
+    absorbing = np.flatnonzero(~pa)
+    extra = [image_points(c[absorbing], walls, m) for m in cells]
+    owner = np.concatenate([np.arange(len(r))] + [absorbing] * len(cells))
+    n_img = len(cells) * len(absorbing)
+    return (np.concatenate([c] + extra), r[owner], np.concatenate([pa, np.zeros(n_img, bool)]),
+            np.concatenate([off, np.zeros(n_img)]), owner)
+
+
+def _fold_images(values, owner, n_real):
+    out = np.zeros(values.shape[:1] + (n_real,) + values.shape[2:])
+    for k, j in enumerate(owner):
+        out[:, j] += values[:, k]
+    return out
+
+
+def _wall_fields(walls) -> dict:
+    if walls is None:
+        return dict(n_walls=jnp.asarray(0, jnp.int64), wall_normal=jnp.asarray([0.0, 0.0, 1.0]),
+                    wall_lower=jnp.asarray(0.0), wall_upper=jnp.asarray(0.0), wall_scale=jnp.asarray(np.inf))
+    return dict(n_walls=jnp.asarray(2 if walls.channel else 1, jnp.int64),
+                wall_normal=jnp.asarray(np.asarray(walls.normal, dtype=float)),
+                wall_lower=jnp.asarray(float(walls.lower)),
+                wall_upper=jnp.asarray(float(walls.upper) if walls.channel else 0.0),
+                wall_scale=jnp.asarray(float(walls.width) if walls.channel else np.inf))
+
+
+def _pulse_array(pulses, n_emit: int, symbol_interval: float) -> np.ndarray:
+    from capacity.errors import InputError
+
+    if pulses is None:
+        return np.zeros(n_emit)
+    p = np.asarray(pulses, dtype=float).reshape(-1)
+    if p.shape != (n_emit,) or not np.all(np.isfinite(p)) or np.any(p < 0.0) or np.any(p > symbol_interval):
+        raise InputError("pulses", np.asarray(pulses).tolist(),
+                         f"must hold one release duration per emitter in [0, symbol_interval = {symbol_interval:g}] s",
+                         "give e.g. [0.005, 0.0]")
+    return p
 
 
 def _pow2_at_least(n: int) -> int:

@@ -47,6 +47,8 @@ class Layout(NamedTuple):
     symbol_interval: float  # s
     emitter_names: tuple[str, ...]
     receiver_names: tuple[str, ...]
+    walls: object = None  # capacity.physics.images.WallGeometry, or None without walls
+    pulses: np.ndarray | None = None  # (E,) s, release durations (None or 0: impulses)
 
 
 def _positive(field, value):
@@ -89,13 +91,20 @@ def layout_arrays(scenario) -> Layout:
         raise InputError(f"emitter[{i}].position", emitters[i].tolist(),
                          f"lies in or on absorbing receiver {j} (gap {gaps[i, j]:.3g} m)",
                          "move the emitter outside the sphere")
+    from capacity.physics.images import wall_geometry
+
     return Layout(emitters, centres, radii, passive, offsets, float(medium.diffusion), float(medium.degradation),
-                  ts, tuple(e.name for e in scenario.emitters), tuple(r.name for r in scenario.receivers))
+                  ts, tuple(e.name for e in scenario.emitters), tuple(r.name for r in scenario.receivers),
+                  wall_geometry(getattr(scenario, "walls", ())), scenario.emitter_pulses)
 
 
 def _lone_arrays(lay: Layout, memory: int):
     from capacity.physics.lone import lone_hits
 
+    if lay.walls is not None or np.any(lay.pulses > 0.0):
+        from capacity.physics.walled import lone_arrays
+
+        return lone_arrays(lay, memory)
     hits, tail = lone_hits(lay.emitters, lay.centres, lay.radii, lay.passive, lay.offsets, lay.diffusion,
                            lay.degradation, lay.symbol_interval, memory=memory)
     return np.asarray(hits, dtype=np.float64), np.asarray(tail, dtype=np.float64)
@@ -155,8 +164,13 @@ def _shadowed(lay: Layout, memory: int, options: dict, lone):
     notes = []
     absorbing = np.flatnonzero(~lay.passive)
     if absorbing.size:
-        sh, st = shadowed_hits(lay.emitters, lay.centres[absorbing], lay.radii[absorbing], lay.diffusion,
-                               lay.degradation, lay.symbol_interval, memory)
+        if lay.walls is not None or np.any(lay.pulses > 0.0):
+            from capacity.physics.walled import shadowed_arrays
+
+            sh, st = shadowed_arrays(lay, absorbing, memory)
+        else:
+            sh, st = shadowed_hits(lay.emitters, lay.centres[absorbing], lay.radii[absorbing], lay.diffusion,
+                                   lay.degradation, lay.symbol_interval, memory)
         hits[:, absorbing, :] = np.asarray(sh, dtype=np.float64)
         tail[:, absorbing] = np.asarray(st, dtype=np.float64)
         checks = list(validity_notes(lay.emitters, lay.centres[absorbing], lay.radii[absorbing], lay.diffusion,
@@ -195,7 +209,8 @@ def _particles(lay: Layout, memory: int, options: dict, lone):
     hits, tail, stderr = simulate_hits(lay.emitters, lay.centres, lay.radii, lay.passive, lay.offsets,
                                        lay.diffusion, lay.degradation, lay.symbol_interval, memory,
                                        particles=int(options["particles"]), seed=int(options["seed"]),
-                                       time_step=options["time_step"], progress=options["progress"])
+                                       time_step=options["time_step"], progress=options["progress"],
+                                       walls=lay.walls, pulses=lay.pulses)
     hits, tail = np.array(hits, dtype=np.float64), np.array(tail, dtype=np.float64)
     notes = [f"particles model: {int(options['particles'])} molecules per emitter, seed {int(options['seed'])}"]
     if lay.passive.any():
@@ -282,6 +297,10 @@ def channel_response(scenario, model=None, *, memory=None, particles=None, seed=
                "time_step": ch.time_step if time_step is None else time_step,
                "progress": progress}
     hits, tail, stderr, model_notes = MODELS[name](lay, lags, options, lone)
+    if lay.walls is not None:
+        from capacity.physics.walled import recurrent_tail
+
+        tail = recurrent_tail(lay, hits, tail, name)
     problems = broken_invariants(hits, tail, lay.passive, shared=name != "lone")
     if problems and name == "shadowed":
         model_notes = [f"the shadowed model broke {'; '.join(problems)} on this layout: switched to the particle "
@@ -292,6 +311,8 @@ def channel_response(scenario, model=None, *, memory=None, particles=None, seed=
             # coarser steps accurate (tests/test_particles.py), so cap the number of steps instead of refusing
             fallback["time_step"] = (lags + 1) * lay.symbol_interval / PARTICLE_STEP_LIMIT
         hits, tail, stderr, more = _particles(lay, lags, fallback, lone)
+        if lay.walls is not None:
+            tail = recurrent_tail(lay, hits, tail, "particles")
         model_notes += more
         name = "particles"
         problems = broken_invariants(hits, tail, lay.passive, shared=True)
@@ -306,6 +327,10 @@ def channel_response(scenario, model=None, *, memory=None, particles=None, seed=
             model_notes.append(f"the lone model lets the absorbing receivers together capture {over[i]:.3g} > 1 "
                                f"of {lay.emitter_names[i]}'s molecules (it ignores that they shadow each other): "
                                "use the shadowed or particles model for this layout")
+    if lay.walls is not None or np.any(lay.pulses > 0.0):
+        from capacity.physics.walled import notes as wall_notes
+
+        model_notes += wall_notes(lay, lags, name)
     i, j = np.unravel_index(int(np.argmax(tail)), tail.shape)
     notes.append(f"largest tail mass beyond lag {lags}: {tail[i, j]:.3g} ({lay.emitter_names[i]} -> "
                  f"{lay.receiver_names[j]})")

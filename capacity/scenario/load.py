@@ -5,13 +5,16 @@ File layout (every quantity a plain SI number or a string with units, e.g. ``"5 
     name = "..."                                   # required
     [medium]      diffusion (required), degradation (1/s, default 0),
                   flow = [vx, vy, vz] (uniform flow velocity, m/s, default at rest)
-    [[emitter]]   name, position = [x, y, z]       # one table per emitter, at least one
+    [[emitter]]   name, position = [x, y, z],      # one table per emitter, at least one
+                  pulse (release duration, default 0 = impulse; e.g. "5 ms")
     [[receiver]]  name, centre = [x, y, z], radius, kind = "absorbing" | "passive" | "reactive",
                   sample_offset (passive only; default: the end of the slot),
                   reaction_rate (reactive only: surface reaction rate, m/s, e.g. "20 um/s")
     [channel]     symbol_interval (required), memory (int or "auto"), memory_tolerance, background,
                   counting, residual, response, particles, time_step, seed
     [signalling]  scheme, levels, peak, budget, emitter (name or index), silent, amplitudes   # optional
+    [[wall]]      point = [x, y, z], normal = [nx, ny, nz] (pointing into the fluid), kind = "reflecting"
+                  # optional: none, one wall (a half space) or two parallel walls facing each other (a channel)
 
 Unknown keys, wrong types and malformed units raise :class:`~capacity.errors.InputError` naming the entry
 (``receiver[0].radius``), the value and a fix; unknown keys and option names come with the nearest valid one.
@@ -27,13 +30,14 @@ import sys
 from os import PathLike
 
 from capacity.errors import InputError
-from capacity.scenario.types import Channel, Emitter, Medium, Receiver, Scenario, Signalling
+from capacity.scenario.types import Channel, Emitter, Medium, Receiver, Scenario, Signalling, Wall
 from capacity.scenario.validate import (
     COUNTING_LAWS,
     RECEIVER_KINDS,
     RESIDUAL_RULES,
     RESPONSE_MODELS,
     SCHEMES,
+    WALL_KINDS,
     validate_scenario,
 )
 from capacity.units import to_si
@@ -46,9 +50,10 @@ else:  # pragma: no cover
 __all__ = ["load_scenario", "scenario_from_dict"]
 
 # [sweep] is read by capacity.sweep (the grid a file carries); the scenario itself ignores it
-_TOP = ("name", "medium", "emitter", "receiver", "channel", "signalling", "sweep")
+_TOP = ("name", "medium", "emitter", "receiver", "channel", "signalling", "wall", "sweep")
 _MEDIUM = ("diffusion", "degradation", "flow")
-_EMITTER = ("name", "position")
+_EMITTER = ("name", "position", "pulse")
+_WALL = ("point", "normal", "kind")
 _RECEIVER = ("name", "centre", "radius", "kind", "sample_offset", "reaction_rate")
 _CHANNEL = (
     "symbol_interval",
@@ -146,6 +151,7 @@ def scenario_from_dict(data: dict, source: str = "<dict>") -> Scenario:
     receivers = tuple(_receiver(t, j) for j, t in enumerate(_array(data, "receiver")))
     channel = _channel(_table(data, "channel", required=True), len(receivers))
     signalling = _signalling(_table(data, "signalling", required=False), emitters)
+    walls = tuple(_wall(t, w) for w, t in enumerate(_array(data, "wall"))) if "wall" in data else ()
     scenario = Scenario(
         name=data["name"],
         medium=medium,
@@ -153,6 +159,7 @@ def scenario_from_dict(data: dict, source: str = "<dict>") -> Scenario:
         receivers=receivers,
         channel=channel,
         signalling=signalling,
+        walls=walls,
     )
     return validate_scenario(scenario)
 
@@ -276,7 +283,23 @@ def _emitter(t: dict, i: int) -> Emitter:
     p = f"emitter[{i}]."
     _known(t, _EMITTER, f"emitter[{i}]", p)
     name = _text(t, "name", p, 'give each emitter a name such as name = "A"')
-    return Emitter(name=name, position=_point(t, "position", p))
+    pulse = to_si(t.get("pulse", 0.0), "time", p + "pulse")
+    return Emitter(name=name, position=_point(t, "position", p), pulse=pulse)
+
+
+def _wall(t: dict, w: int) -> Wall:
+    p = f"wall[{w}]."
+    _known(t, _WALL, f"wall[{w}]", p)
+    normal = _require(t, "normal", p, "give the direction into the fluid, e.g. normal = [0, 1, 0]")
+    if not isinstance(normal, list) or len(normal) != 3:
+        raise InputError(p + "normal", normal, "must be a list of 3 numbers [nx, ny, nz]",
+                         "give the direction into the fluid, e.g. normal = [0, 1, 0]")
+    for k, c in enumerate(normal):
+        if isinstance(c, bool) or not isinstance(c, numbers.Real):
+            raise InputError(f"{p}normal[{k}]", c, "must be a plain number (a direction has no unit)",
+                             "give the direction into the fluid, e.g. normal = [0, 1, 0]")
+    kind = _enum(t, "kind", p, WALL_KINDS, "reflecting")
+    return Wall(point=_point(t, "point", p), normal=tuple(float(c) for c in normal), kind=kind)
 
 
 def _receiver(t: dict, j: int) -> Receiver:

@@ -78,7 +78,8 @@ def summarise(s: Scenario) -> dict:
     ``peak_fraction`` (passive only: the largest expected fraction inside, else None), ``peak_time`` (absorbing:
     peak of the lone hitting rate, d^2/(6D) without degradation; passive: peak of the fraction inside),
     ``peak_time_slots`` = peak_time / symbol_interval), ``receiver_gaps`` (``a``, ``b``, ``centre_distance``,
-    ``gap``) and ``warnings`` (from :func:`geometry_warnings`).
+    ``gap``), ``warnings`` (from :func:`geometry_warnings`), ``walls`` (:func:`wall_summary`) and ``pulses``
+    (emitter name -> release duration in s, pulsed emitters only).
     """
     dcoef, k, ts = float(s.medium.diffusion), float(s.medium.degradation), float(s.channel.symbol_interval)
     em, rc, radii = s.emitter_positions, s.receiver_centres, s.receiver_radii
@@ -129,7 +130,30 @@ def summarise(s: Scenario) -> dict:
         "pairs": pairs,
         "receiver_gaps": gaps,
         "warnings": list(geometry_warnings(s)),
+        "walls": wall_summary(s),
+        "pulses": {e.name: float(e.pulse) for e in s.emitters if e.pulse > 0.0},
     }
+
+
+def wall_summary(s: Scenario) -> list[dict]:
+    """One dict per wall: ``point``, ``normal`` (unit, into the fluid), ``emitter_distances`` (name -> m from the
+    plane) and ``receiver_gaps`` (name -> m from the plane to the receiver's surface); empty without walls."""
+    out = []
+    for w, wall in enumerate(s.walls):
+        n = np.asarray(wall.normal, dtype=float)
+        n = n / np.linalg.norm(n)
+        p = np.asarray(wall.point, dtype=float)
+        out.append({
+            "wall": w,
+            "kind": wall.kind,
+            "point": [float(c) for c in p],
+            "normal": [float(c) for c in n],
+            "emitter_distances": {e.name: float(np.dot(np.asarray(e.position, dtype=float) - p, n))
+                                  for e in s.emitters},
+            "receiver_gaps": {r.name: float(np.dot(np.asarray(r.centre, dtype=float) - p, n) - r.radius)
+                              for r in s.receivers},
+        })
+    return out
 
 
 def _table(header: list[str], rows: list[list[str]]) -> list[str]:
@@ -184,6 +208,24 @@ def format_summary(d: dict) -> str:
             for g in d["receiver_gaps"]
         ]
         out += _table(["receivers", "distance µm", "gap µm"], rows)
+    if d.get("walls"):
+        out.append("")
+        rows = [[f"wall[{w['wall']}] ({w['kind']})", "emitter " + name, _num(dist, 1e6)]
+                for w in d["walls"] for name, dist in w["emitter_distances"].items()]
+        rows += [[f"wall[{w['wall']}] ({w['kind']})", "receiver " + name, _num(gap, 1e6)]
+                 for w in d["walls"] for name, gap in w["receiver_gaps"].items()]
+        out += _table(["wall", "to", "distance µm (receivers: to the surface)"], rows)
+    if d.get("pulses"):
+        out.append("")
+        out.append("release pulses: " + ", ".join(f"{n} {p * 1e3:.4g} ms" for n, p in d["pulses"].items()))
+    if d.get("flow"):
+        f = d["flow"]
+        out.append("")
+        out.append("flow: v = (" + ", ".join(_num(c, 1e6) for c in f["velocity"]) + f") µm/s, |v| = "
+                   f"{f['speed'] * 1e6:.4g} µm/s; lone captures and peak times above are for a still fluid")
+        rows = [[name, "receiver (|v| a / D)", _num(pe, fmt=".3g")] for name, pe in f["peclet"].items()]
+        rows += [[name, "gap (|v| d / D)", _num(pe, fmt=".3g")] for name, pe in f["gap_peclet"].items()]
+        out += _table(["Peclet number", "length", "value"], rows)
     out.append("")
     if d["warnings"]:
         out += ["warnings:"] + [f"  - {w}" for w in d["warnings"]]

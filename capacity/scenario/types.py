@@ -30,10 +30,29 @@ class Medium:
 
 @dataclass(frozen=True)
 class Emitter:
-    """A point source. ``position`` in metres, shape (3,)."""
+    """A point source. ``position`` in metres, shape (3,).
+
+    pulse : seconds, >= 0: the molecules of one release leave at uniformly spread times over ``[0, pulse]`` (a
+        rectangular release); 0 (default) is an impulse at the start of the slot.
+    """
 
     name: str
     position: tuple[float, float, float]
+    pulse: float = 0.0
+
+
+@dataclass(frozen=True)
+class Wall:
+    """A flat reflecting wall: the plane through ``point`` (m, shape (3,)) perpendicular to ``normal``.
+
+    normal : any non-zero length (it is normalised); it points INTO the fluid, so emitters and receivers lie on
+        the side it points to. kind : ``"reflecting"`` (molecules bounce off; the only kind).
+    One wall bounds a half space; two parallel walls whose normals face each other form a channel.
+    """
+
+    point: tuple[float, float, float]
+    normal: tuple[float, float, float]
+    kind: str = "reflecting"
 
 
 @dataclass(frozen=True)
@@ -121,6 +140,7 @@ class Scenario:
     receivers: tuple[Receiver, ...]
     channel: Channel
     signalling: Signalling = field(default_factory=Signalling)
+    walls: tuple[Wall, ...] = ()
 
     # -- convenient array views -------------------------------------------------------------------
     @property
@@ -149,6 +169,11 @@ class Scenario:
     def flow(self) -> np.ndarray:
         """Uniform flow velocity, m/s, shape (3,)."""
         return np.asarray(self.medium.flow, dtype=float).reshape(3)
+
+    @property
+    def emitter_pulses(self) -> np.ndarray:
+        """Release durations, seconds, shape (E,) (0 = impulse)."""
+        return np.asarray([e.pulse for e in self.emitters], dtype=float).reshape(-1)
 
     @property
     def background(self) -> np.ndarray:

@@ -24,6 +24,7 @@ __all__ = [
     "RESIDUAL_RULES",
     "RESPONSE_MODELS",
     "SCHEMES",
+    "WALL_KINDS",
     "geometry_warnings",
     "hitting_peak_time",
     "validate_scenario",
@@ -33,6 +34,9 @@ RECEIVER_KINDS = ("absorbing", "passive", "reactive")
 COUNTING_LAWS = ("poisson", "binomial")
 RESIDUAL_RULES = ("interference", "drop")
 RESPONSE_MODELS = ("lone", "shadowed", "particles")
+WALL_KINDS = ("reflecting",)
+#: two walls count as parallel when the sine of the angle between their normals is below this
+PARALLEL_TOLERANCE = 1e-9
 SCHEMES = ("amplitude", "spatial", "multiplex", "hybrid")
 #: hard cap on the number of lags kept exactly (memory = L keeps L + 1 slots)
 MAX_MEMORY = 2000
@@ -177,7 +181,88 @@ def validate_scenario(s: Scenario) -> Scenario:
     _check_channel(s)
     _check_signalling(s)
     _check_geometry(s)
+    _check_pulses(s)
+    _check_walls(s)
     return s
+
+
+def _check_pulses(s: Scenario) -> None:
+    """``emitter[i].pulse``: a release duration in [0, symbol_interval] (seconds)."""
+    ts = float(s.channel.symbol_interval)
+    for i, e in enumerate(s.emitters):
+        fix = f'give a release duration from 0 (an impulse) up to the symbol interval ({ts:g} s), e.g. "5 ms"'
+        pulse = _finite(f"emitter[{i}].pulse", e.pulse, fix)
+        if pulse < 0.0:
+            raise InputError(f"emitter[{i}].pulse", e.pulse, "must not be negative", fix)
+        if pulse > ts:
+            raise InputError(f"emitter[{i}].pulse", e.pulse,
+                             f"is longer than the symbol interval ({ts:g} s): one release would overlap the next",
+                             fix)
+
+
+def wall_normals(s: Scenario) -> list[np.ndarray]:
+    """Unit normals of the walls of a validated scenario (pointing into the fluid)."""
+    return [np.asarray(w.normal, dtype=float) / np.linalg.norm(np.asarray(w.normal, dtype=float)) for w in s.walls]
+
+
+def _check_walls(s: Scenario) -> None:
+    """At most two reflecting walls (two must be parallel and face each other); every emitter strictly on the
+    fluid side of every wall; no wall touching or cutting a receiver."""
+    walls = s.walls
+    if not isinstance(walls, tuple):
+        raise InputError("wall", walls, "must be a tuple of Wall objects", "pass walls=(Wall(...), ...)")
+    if len(walls) > 2:
+        raise InputError("wall", f"{len(walls)} walls", "at most two walls are supported (a half space or a channel)",
+                         "keep one wall, or two parallel walls facing each other")
+    fix_n = "give the direction into the fluid, e.g. normal = [0, 1, 0]"
+    normals = []
+    for w, wall in enumerate(walls):
+        _point(f"wall[{w}].point", wall.point, 'give [x, y, z] in metres or as strings such as ["0 um", "-20 um", "0 um"]')
+        n = wall.normal
+        if not isinstance(n, (tuple, list, np.ndarray)) or len(n) != 3:
+            raise InputError(f"wall[{w}].normal", n, "must be a list of 3 numbers [nx, ny, nz]", fix_n)
+        vec = np.asarray([_finite(f"wall[{w}].normal[{k}]", c, fix_n) for k, c in enumerate(n)])
+        length = float(np.linalg.norm(vec))
+        if not length > 0.0 or not math.isfinite(length):
+            raise InputError(f"wall[{w}].normal", n, "is the zero vector, which gives the wall no orientation",
+                             fix_n)
+        normals.append(vec / length)
+        _choice(f"wall[{w}].kind", wall.kind, WALL_KINDS)
+    if len(walls) == 2:
+        sine = float(np.linalg.norm(np.cross(normals[0], normals[1])))
+        if sine > PARALLEL_TOLERANCE:
+            angle = math.degrees(math.asin(min(sine, 1.0)))
+            raise InputError("wall[1].normal", walls[1].normal,
+                             f"is not parallel to wall[0].normal {walls[0].normal} (angle {angle:.3g} degrees): only "
+                             "two parallel walls (a channel) are supported",
+                             "give the second wall the opposite normal of the first, e.g. [0, 1, 0] and [0, -1, 0]")
+        if float(np.dot(normals[0], normals[1])) > 0.0:
+            raise InputError("wall[1].normal", walls[1].normal,
+                             f"points the same way as wall[0].normal {walls[0].normal}: the normals of a channel's "
+                             "walls must face each other (each points into the fluid)",
+                             "flip one normal, e.g. [0, 1, 0] for the lower wall and [0, -1, 0] for the upper one")
+    for w, wall in enumerate(walls):
+        n, p = normals[w], np.asarray(wall.point, dtype=float)
+        for i, e in enumerate(s.emitters):
+            height = float(np.dot(np.asarray(e.position, dtype=float) - p, n))
+            if height <= 0.0:
+                where = "on" if height == 0.0 else f"{um(-height)} behind"
+                raise InputError(f"emitter[{i}].position", e.position,
+                                 f'lies {where} wall[{w}] (the fluid is on the side its normal {wall.normal} points '
+                                 "to)", "move the emitter into the fluid, or flip the wall's normal")
+        for j, r in enumerate(s.receivers):
+            height = float(np.dot(np.asarray(r.centre, dtype=float) - p, n))
+            if height <= 0.0:
+                raise InputError(f"receiver[{j}].centre", r.centre,
+                                 f'receiver[{j}] "{r.name}" has its centre {"on" if height == 0.0 else um(-height) + " behind"} '
+                                 f"wall[{w}] (the fluid is on the side its normal {wall.normal} points to)",
+                                 "move the receiver into the fluid, or flip the wall's normal")
+            if height <= float(r.radius):
+                how = "touches" if height == float(r.radius) else "is cut by"
+                raise InputError(f"receiver[{j}].centre", r.centre,
+                                 f'receiver[{j}] "{r.name}" {how} wall[{w}]: its centre is {um(height)} from the wall '
+                                 f"and its radius is {um(float(r.radius))}",
+                                 f"move the centre more than {um(float(r.radius))} from the wall, or shrink the radius")
 
 
 def _check_medium(s: Scenario) -> None:
