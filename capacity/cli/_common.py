@@ -19,8 +19,11 @@ def add_scenario_argument(parser) -> None:
     parser.add_argument(
         "scenario",
         metavar="SCENARIO",
-        help="scenario file (TOML), or the word 'demo' for the built-in demo scenario",
+        help="scenario file (TOML), or the name of a built-in scenario ('demo')",
     )
+    parser.add_argument("--strict", action="store_true",
+                        help="treat the scenario's warnings (suspicious geometry, values whose size suggests a unit "
+                             "slip) as errors: exit status 2")
 
 
 def demo_path() -> Path:
@@ -30,11 +33,24 @@ def demo_path() -> Path:
     return builtin_path("demo")
 
 
-def load(path_or_demo: str):
-    """Load a scenario file, or the built-in demo for the word ``demo`` (as :func:`capacity.load_scenario`)."""
-    from capacity.scenario.load import load_scenario
+def load(path_or_demo: str, *, strict: bool = False, announce: bool = True):
+    """Load a scenario file, or a built-in one by name (as :func:`capacity.load_scenario`), and deal with its
+    warnings: printed once on stderr (``announce``), or an :class:`InputError` with ``strict``."""
+    import sys
 
-    return load_scenario(path_or_demo)
+    from capacity.errors import InputError
+    from capacity.scenario.load import load_scenario
+    from capacity.scenario.summary import scenario_warnings
+
+    scenario = load_scenario(path_or_demo)
+    warnings = scenario_warnings(scenario)
+    if warnings and strict:
+        raise InputError("--strict", path_or_demo, f"the scenario has {len(warnings)} warning(s): "
+                         + "; ".join(warnings), "fix the values named, or drop --strict")
+    if warnings and announce:
+        for w in warnings:
+            print(f"warning: {w}", file=sys.stderr)
+    return scenario
 
 
 def to_jsonable(obj):
@@ -72,3 +88,33 @@ def fmt(x: float, digits: int = 4) -> str:
     if 1e-3 <= abs(x) < 1e5:
         return f"{x:.{digits}g}"
     return f"{x:.{max(digits - 1, 1)}e}"
+
+
+def add_effort_arguments(parser) -> None:
+    """--precision, --full, --symbols, --runs: how much simulation the rates with ISI get."""
+    group = parser.add_argument_group("precision of the simulated rates")
+    group.add_argument("--precision", type=float, metavar="REL",
+                       help="target relative standard error of the simulated rates: batches of runs are added "
+                            "until it is met (default 0.005, i.e. 0.5 %%, enough for two significant digits)")
+    group.add_argument("--full", action="store_true",
+                       help="the long settings used for committed results (20000 symbols x 8 runs, trellis up to "
+                            "4096 states, 4096 windowed-bound samples); slower, tighter brackets")
+    group.add_argument("--symbols", type=int, metavar="N",
+                       help="symbols per run of the forward recursion (default 2500, or 20000 with --full)")
+    group.add_argument("--runs", type=int, metavar="K",
+                       help="independent runs per batch; the standard error comes from their spread (default 8)")
+
+
+def effort_of(args):
+    """The :class:`capacity.effort.Effort` the effort arguments ask for (named errors for bad values)."""
+    from capacity.effort import effort
+    from capacity.errors import InputError
+
+    for option, value, low in (("--symbols", args.symbols, 1), ("--runs", args.runs, 2)):
+        if value is not None and value < low:
+            raise InputError(option, value, f"must be at least {low}", f"use e.g. {option} {max(low, 8)}")
+    if args.precision is not None and not (0 < args.precision < 1):
+        raise InputError("--precision", args.precision, "must be a relative standard error in (0, 1)",
+                         "use e.g. --precision 0.005 (0.5 %)")
+    return effort("full" if args.full else "quick", n_symbols=args.symbols, n_runs=args.runs,
+                  precision=args.precision, max_rounds=None if args.precision is None else 8)

@@ -23,7 +23,7 @@ def add_parser(sub) -> None:
 def run(args) -> int:
     from capacity.scenario.summary import format_summary, summarise
 
-    scenario = load(args.scenario)
+    scenario = load(args.scenario, strict=args.strict, announce=False)
     summary = summarise(scenario)
     summary["response_model_notes"] = model_notes(scenario)
     if args.json:

@@ -81,7 +81,7 @@ def run(args) -> int:
     from capacity.compare import applicable_schemes, budget_sweep, compare_schemes
     from capacity.physics.response import channel_response
 
-    scenario = load(args.scenario)
+    scenario = load(args.scenario, strict=args.strict)
     schemes = [s.strip() for s in args.schemes.split(",")] if args.schemes else None
     budgets = parse_budgets(args.budgets) if args.budgets else None
     out = Path(args.out) if args.out else None

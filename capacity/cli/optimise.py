@@ -145,7 +145,7 @@ def run(args) -> int:
     from capacity.design.optimise import optimise_design
     from capacity.design.scenario_toml import scenario_toml
 
-    scenario = load(args.scenario)
+    scenario = load(args.scenario, strict=args.strict)
     tune = tuple(t.strip() for t in args.tune.split(",") if t.strip())
     out = Path(args.out) if args.out else None
     if out is not None:

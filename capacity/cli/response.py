@@ -75,7 +75,7 @@ def format_response(scenario, response, max_slots: int = 12) -> str:
 def run(args) -> int:
     from capacity.physics.response import channel_response
 
-    scenario = load(args.scenario)
+    scenario = load(args.scenario, strict=args.strict)
     response = channel_response(scenario, args.model, particles=args.particles, seed=args.seed,
                                 progress=not args.json)
     if args.plot:

@@ -20,6 +20,14 @@ from capacity.scenario.validate import geometry_warnings, hitting_peak_time
 __all__ = ["format_summary", "lone_capture", "passive_fraction", "passive_peak", "summarise"]
 
 
+def scenario_warnings(s: Scenario) -> list[str]:
+    """Every warning for a valid scenario: legal but suspicious geometry (:func:`geometry_warnings`) and values
+    whose size suggests a unit slip (:func:`capacity.scenario.magnitudes.magnitude_warnings`)."""
+    from capacity.scenario.magnitudes import magnitude_warnings
+
+    return list(geometry_warnings(s)) + magnitude_warnings(s)
+
+
 def lone_capture(radius: float, gap: float, diffusion: float, degradation: float = 0.0) -> float:
     """Eventual fraction of molecules from a point source absorbed by one lone absorbing sphere.
 
@@ -129,7 +137,7 @@ def summarise(s: Scenario) -> dict:
         "symbol_interval": ts,
         "pairs": pairs,
         "receiver_gaps": gaps,
-        "warnings": list(geometry_warnings(s)),
+        "warnings": scenario_warnings(s),
         "walls": wall_summary(s),
         "pulses": {e.name: float(e.pulse) for e in s.emitters if e.pulse > 0.0},
     }
