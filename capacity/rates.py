@@ -185,6 +185,7 @@ def link_rates(
     optimise_law: bool = True,
     candidate_laws: dict | None = None,
     stage=None,
+    effort=None,
 ) -> LinkRates:
     """All rates of a link.
 
@@ -203,6 +204,10 @@ def link_rates(
         rate with ISI (:func:`capacity.information.iid_law.optimise_iid_law`) and keep the better one.
     candidate_laws : name -> (S,) further laws to try (those over the budget are skipped).
     stage : optional callable, called with a short name as each long stage starts (progress display).
+    effort : an :class:`capacity.effort.Effort` or its name (``"quick"``, ``"full"``); when given it replaces
+        ``n_symbols``, ``n_runs``, ``max_states``, ``window_samples`` and ``bound_samples``, sizes the reduced
+        trellis from its time budget and adds batches of runs until the trellis and windowed estimates reach
+        its relative standard error (:mod:`capacity.effort`).
 
     The reported ``information_rate`` is the forward-recursion estimate when the trellis keeps every lag, else
     the larger of its reduced-state lower bound and the windowed bound; ``lower_bound``/``upper_bound`` are the
@@ -215,6 +220,12 @@ def link_rates(
     from capacity.information.trellis import rate_result, trellis_rates
     from capacity.information.window import window_bound
 
+    if effort is not None:
+        from capacity.effort import effort as _effort
+
+        effort = _effort(effort)
+        n_symbols, n_runs, max_states = effort.n_symbols, effort.n_runs, effort.max_states
+        window_samples, bound_samples = effort.window_samples, effort.bound_samples
     budget = scenario.signalling.budget if budget is None else budget
     seed = scenario.channel.seed if seed is None else seed
     hits = np.asarray(response.hits, dtype=float)
@@ -255,7 +266,7 @@ def link_rates(
     search = optimise_law and iid_input is None
     if L > 0 and (search or candidate_laws):
         law, law_choice, law_note = _choose_law(hits, background, symbols, cost, budget, law, law_choice,
-                                                tail if use_tail else None, candidate_laws, search, seed)
+                                                tail if use_tail else None, candidate_laws, search, seed, effort)
         notes.append(law_note)
     if use_tail:
         interference = residual_interference(tail, symbols, law)
@@ -266,14 +277,30 @@ def link_rates(
         notes.append("mass beyond the kept lags dropped (channel.residual = 'drop')")
 
     stage("trellis rate")
-    tr = trellis_rates(hits, background, symbols, law, interference=interference, n_symbols=n_symbols,
-                       n_runs=n_runs, seed=seed, max_states=max_states)
+    if effort is not None and effort.trellis_seconds is not None:
+        from capacity.effort import states_for_budget
+
+        max_states = states_for_budget(len(law), L, n_symbols * n_runs, effort.trellis_seconds, max_states)
+
+    def trellis_batch(batch):
+        from capacity.effort import batch_seed
+
+        return trellis_rates(hits, background, symbols, law, interference=interference, n_symbols=n_symbols,
+                             n_runs=n_runs, seed=batch_seed(seed, batch), max_states=max_states)
+
+    tr = _refined_trellis(trellis_batch, n_symbols, seed, effort)
     trellis = rate_result(tr, n_symbols, seed)
     k = tr["upper"].size
     aux_upper = (float(tr["upper"].mean()), float(tr["upper"].std(ddof=1) / np.sqrt(k)))
     stage("bounds")
-    window = window_bound(hits, background, symbols, law, interference=interference, n_samples=window_samples,
-                          seed=seed + 3) if L > 0 else None
+
+    def window_batch(batch):
+        from capacity.effort import batch_seed
+
+        return window_bound(hits, background, symbols, law, interference=interference, n_samples=window_samples,
+                            seed=batch_seed(seed + 3, batch))
+
+    window = _refined(window_batch, effort) if L > 0 else None
     bounds = isi_bounds(hits, background, symbols, law, interference=interference, n_samples=bound_samples,
                         seed=seed + 1)
     headline = trellis
@@ -289,8 +316,36 @@ def link_rates(
     return out._replace(notes=out.notes + (note,)) if note else out
 
 
+def _refined(batch, effort):
+    """``batch(0)``, then further independent batches pooled until the relative standard error reaches
+    ``effort.precision`` (or ``effort.max_rounds`` batches); one batch without an effort."""
+    from capacity.effort import pool, relative_se
+
+    results = [batch(0)]
+    while (effort is not None and effort.precision is not None and len(results) < effort.max_rounds
+           and relative_se(pool(results)) > effort.precision):
+        results.append(batch(len(results)))
+    return pool(results)
+
+
+def _refined_trellis(batch, n_symbols, seed, effort):
+    """Per-run trellis estimates, with batches of runs added under the stopping rule of :func:`_refined`."""
+    from capacity.effort import relative_se
+    from capacity.information.trellis import rate_result
+
+    tr = batch(0)
+    rounds = 1
+    while (effort is not None and effort.precision is not None and rounds < effort.max_rounds
+           and relative_se(rate_result(tr, n_symbols, seed)) > effort.precision):
+        more = batch(rounds)
+        tr = dict(tr, lower=np.concatenate([tr["lower"], more["lower"]]),
+                  upper=np.concatenate([tr["upper"], more["upper"]]))
+        rounds += 1
+    return tr
+
+
 def _choose_law(hits, background, symbols, cost, budget, law, law_choice, tail, candidate_laws, optimise_law,
-                seed):
+                seed, effort=None):
     """The i.i.d. law with the largest windowed bound (common random numbers) among the given one, the law
     optimised for the rate with ISI (mirror ascent, :mod:`capacity.information.iid_law`) and any candidates
     (laws found at smaller budgets stay feasible at larger ones)."""
@@ -300,7 +355,8 @@ def _choose_law(hits, background, symbols, cost, budget, law, law_choice, tail, 
     base = np.broadcast_to(np.asarray(background, dtype=float), (hits.shape[1],))
     candidates = [(law_choice, law)]
     if optimise_law:
-        opt = optimise_iid_law(hits, base, symbols, cost, budget, law, tail=tail, seed=seed + 2)
+        extra = {} if effort is None else {"n_samples": effort.law_samples, "iterations": effort.law_iterations}
+        opt = optimise_iid_law(hits, base, symbols, cost, budget, law, tail=tail, seed=seed + 2, **extra)
         candidates.append(("optimised for the rate with ISI (windowed bound, mirror ascent)", opt.law))
     for name, cand in (candidate_laws or {}).items():
         cand = np.asarray(cand, dtype=float)
@@ -309,7 +365,8 @@ def _choose_law(hits, background, symbols, cost, budget, law, law_choice, tail, 
     scores = []
     for _name, cand in candidates:
         interference = residual_interference(tail, symbols, cand) if tail is not None else None
-        w = window_bound(hits, base, symbols, cand, interference=interference, n_samples=2048, seed=seed + 4)
+        w = window_bound(hits, base, symbols, cand, interference=interference,
+                         n_samples=2048 if effort is None else effort.law_samples, seed=seed + 4)
         scores.append(w.rate)
     best = int(np.argmax(scores))
     name, chosen = candidates[best]

@@ -46,7 +46,27 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+def use_compilation_cache() -> None:
+    """Keep JAX's compiled kernels between runs (JAX's persistent compilation cache) in the user's cache
+    directory: ``$CAPACITY_CACHE_DIR``, else ``$XDG_CACHE_HOME/capacity/jax``, else ``~/.cache/capacity/jax``.
+    Set ``CAPACITY_CACHE_DIR=off`` to switch it off. Must run before JAX is imported; the variables already set
+    by the user win."""
+    import os
+    from pathlib import Path
+
+    where = os.environ.get("CAPACITY_CACHE_DIR")
+    if where == "off":
+        return
+    if not where:
+        base = os.environ.get("XDG_CACHE_HOME") or str(Path.home() / ".cache")
+        where = str(Path(base) / "capacity" / "jax")
+    os.environ.setdefault("JAX_COMPILATION_CACHE_DIR", where)
+    os.environ.setdefault("JAX_PERSISTENT_CACHE_MIN_COMPILE_TIME_SECS", "0")
+    os.environ.setdefault("JAX_PERSISTENT_CACHE_MIN_ENTRY_SIZE_BYTES", "0")
+
+
 def main(argv: list[str] | None = None) -> int:
+    use_compilation_cache()
     parser = build_parser()
     args = parser.parse_args(argv)
     try:

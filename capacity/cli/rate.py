@@ -6,7 +6,7 @@ import sys
 
 import numpy as np
 
-from capacity.cli._common import SAFETY, add_scenario_argument, dump_json, fmt, load
+from capacity.cli._common import SAFETY, add_effort_arguments, add_scenario_argument, dump_json, effort_of, fmt, load
 
 
 def add_parser(sub) -> None:
@@ -26,10 +26,7 @@ def add_parser(sub) -> None:
     add_scenario_argument(p)
     p.add_argument("--model", choices=("lone", "shadowed", "particles"), help="response model override")
     p.add_argument("--budget", type=float, metavar="MOLECULES", help="mean molecules per symbol (override)")
-    p.add_argument("--symbols", type=int, default=20_000, metavar="N",
-                   help="symbols simulated per run of the forward recursion (default 20000)")
-    p.add_argument("--runs", type=int, default=8, metavar="K",
-                   help="independent runs; the standard error comes from their spread (default 8)")
+    add_effort_arguments(p)
     p.add_argument("--seed", type=int, metavar="S", help="random seed (default: the scenario's)")
     p.add_argument("--markov", action="store_true",
                    help="also optimise a Markov input law over the ISI trellis (generalised Blahut-Arimoto; only "
@@ -39,10 +36,14 @@ def add_parser(sub) -> None:
     p.set_defaults(func=run)
 
 
-def compute(scenario, *, model=None, budget=None, n_symbols=20_000, n_runs=8, seed=None, progress=False):
+def compute(scenario, *, model=None, budget=None, n_symbols=None, n_runs=None, seed=None, progress=False,
+            effort="full"):
     """Response, alphabet and rates of one scenario; returns (response, alphabet, LinkRates).
 
+    effort: an :class:`capacity.effort.Effort` or its name; ``n_symbols``/``n_runs`` override it.
     progress: show the stages on stderr (tqdm), when stderr is a terminal."""
+    from capacity.effort import effort as make_effort
+
     from capacity.physics.response import channel_response
     from capacity.rates import link_rates
     from capacity.schemes.builders import build_alphabet
@@ -64,8 +65,8 @@ def compute(scenario, *, model=None, budget=None, n_symbols=20_000, n_runs=8, se
         stage("channel response")
         response = channel_response(scenario, model, seed=seed)
         alphabet = build_alphabet(scenario.signalling, len(scenario.emitters))
-        rates = link_rates(scenario, response, alphabet, n_symbols=n_symbols, n_runs=n_runs, seed=seed,
-                           stage=stage)
+        rates = link_rates(scenario, response, alphabet, seed=seed, stage=stage,
+                           effort=make_effort(effort, n_symbols=n_symbols, n_runs=n_runs))
     finally:
         if bar is not None:
             bar.close()
@@ -170,17 +171,19 @@ def check_markov(scenario) -> None:
 
 
 def run(args) -> int:
-    scenario = load(args.scenario)
+    scenario = load(args.scenario, strict=args.strict)
     if args.budget is not None:
         scenario = scenario.with_signalling(budget=args.budget)
     if args.markov:
         check_markov(scenario)
-    response, _, rates = compute(scenario, model=args.model, n_symbols=args.symbols, n_runs=args.runs,
-                                 seed=args.seed, progress=not (args.quiet or args.json))
+    effort = effort_of(args)
+    response, _, rates = compute(scenario, model=args.model, seed=args.seed, effort=effort,
+                                 progress=not (args.quiet or args.json))
     record = rate_record(scenario, response, rates)
     text = format_rates(scenario, response, rates)
     if args.markov:
-        record["markov_input"] = markov_record(scenario, response, rates, n_symbols=args.symbols, seed=args.seed)
+        record["markov_input"] = markov_record(scenario, response, rates, n_symbols=effort.n_symbols,
+                                               seed=args.seed)
         m = record["markov_input"]
         text += (f"\n  optimised Markov input: {fmt(m['rate'])} +/- {fmt(m['stderr'])} bits/symbol "
                  f"({fmt(m['bits_per_second'])} bits/s)")

@@ -37,7 +37,7 @@ from jax.scipy.special import logsumexp, xlogy
 from capacity import _jax  # noqa: F401  (float64)
 from capacity.errors import InputError
 from capacity.information.result import RateResult
-from capacity.information.trellis import check_channel, check_law
+from capacity.information.trellis import check_channel, check_law, poisson_counts
 
 LN2 = float(np.log(2.0))
 #: largest number of enumerated futures S^J when the window is chosen automatically
@@ -102,19 +102,27 @@ def _log_window(y, known, now, fut, log_law, log_fut):
     return logsumexp(ll + log_fut[None, None, None, :], axis=-1)
 
 
-@partial(jax.jit, static_argnames=("memory_past", "J", "n"))
 def draw(key, hits, base, sym, law, *, memory_past: int, J: int, n: int):
     """Common random numbers for the estimator: past (n, L) symbols, future (n, S, J) symbols, and the window
-    counts y (n, S, J+1, R) drawn from the true channel for each current symbol s."""
+    counts y (n, S, J+1, R) drawn from the true channel for each current symbol s.
+
+    The counts come from :func:`capacity.information.trellis.poisson_counts`, whose sampler is compiled once for
+    a fixed block size (a Poisson sampler compiled for each shape cost 5-15 s per new shape)."""
+    k_sym, k_y = jax.random.split(key)
+    past, fut, mean = _draw_symbols(k_sym, hits, base, sym, law, memory_past=memory_past, J=J, n=n)
+    return past, fut, poisson_counts(k_y, mean)
+
+
+@partial(jax.jit, static_argnames=("memory_past", "J", "n"))
+def _draw_symbols(key, hits, base, sym, law, *, memory_past: int, J: int, n: int):
+    """Past (n, L) and future (n, S, J) symbols i.i.d. from ``law``, and the window means (n, S, J+1, R)."""
     h, b, x = (jnp.asarray(v, dtype=jnp.float64) for v in (hits, base, sym))
     S = x.shape[0]
-    k_past, k_fut, k_y = jax.random.split(key, 3)
+    k_past, k_fut = jax.random.split(key)
     logits = jnp.log(jnp.asarray(law, dtype=jnp.float64))
     past = jax.random.categorical(k_past, logits, shape=(n, memory_past))
     fut = jax.random.categorical(k_fut, logits, shape=(n, S, J))
-    mean = true_means(h, b, x, past, fut, J)
-    y = jax.random.poisson(k_y, mean, shape=mean.shape).astype(jnp.float64)
-    return past, fut, y
+    return past, fut, true_means(h, b, x, past, fut, J)
 
 
 def true_means(hits, base, sym, past, fut, J):
