@@ -94,7 +94,8 @@ class Problem(NamedTuple):
     residual : "interference" (tail added as mean interference) or "drop".
     objective : one of :data:`OBJECTIVES`.  rate : one of :data:`RATES`.
     budget : mean molecules per symbol or None.  lags : lags enumerated by "isi-as-noise", or the look-ahead J
-    of "isi-window" (static).
+    of "isi-window" (static).  transport : :class:`capacity.physics.transport.Transport` (surface reaction rates
+    and uniform flow) or None for absorbing / passive receivers in a still fluid.
     """
 
     space: DesignSpace
@@ -109,6 +110,7 @@ class Problem(NamedTuple):
     rate: str
     budget: float | None
     lags: int
+    transport: object = None
 
 
 class Fixed(NamedTuple):
@@ -140,6 +142,12 @@ class Evaluation(NamedTuple):
 
 def response(problem: Problem, lay: Layout):
     """hits (E,R,L+1), tail (E,R) of a layout from the problem's differentiable response model."""
+    if problem.transport is not None:  # flow or reactive receivers: the lone closed forms / flow series
+        from capacity.physics.transport import design_hits
+
+        offsets = jnp.asarray(problem.space.sample_fraction) * lay.symbol_interval
+        return design_hits(problem.transport, lay.emitters, lay.centres, lay.radii, problem.space.passive, offsets,
+                           problem.diffusion, problem.degradation, lay.symbol_interval, problem.memory)
     if problem.model == "shadowed":
         from capacity.physics.shadowed import shadowed_hits
 

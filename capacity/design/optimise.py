@@ -99,9 +99,11 @@ class DesignResult(NamedTuple):
 
 
 def differentiable_model(scenario) -> str:
-    """"shadowed" if every receiver absorbs and the scenario does not ask for "lone", else "lone"."""
+    """"shadowed" if every receiver absorbs in a still fluid and the scenario does not ask for "lone", else "lone"
+    (with a flow or reactive receivers the lone flow / reactive forms of :mod:`capacity.physics.transport`)."""
     absorbing = all(r.kind == "absorbing" for r in scenario.receivers)
-    return "shadowed" if absorbing and scenario.channel.response != "lone" else "lone"
+    still = not any(float(v) != 0.0 for v in scenario.medium.flow)
+    return "shadowed" if absorbing and still and scenario.channel.response != "lone" else "lone"
 
 
 def build_problem(scenario, tune, objective, *, rate="auto", bounds=None, min_gap=None) -> Problem:
@@ -121,6 +123,9 @@ def build_problem(scenario, tune, objective, *, rate="auto", bounds=None, min_ga
     problem = Problem(space, symbols, scenario.background, float(scenario.medium.diffusion),
                       float(scenario.medium.degradation), model, 0, scenario.channel.residual, objective, rate,
                       scenario.signalling.budget, 0)
+    from capacity.physics.transport import transport_spec
+
+    problem = problem._replace(transport=transport_spec(scenario))
     memory = scenario.channel.memory
     if not isinstance(memory, (int, np.integer)):
         memory = auto_memory(problem, float(scenario.channel.memory_tolerance))

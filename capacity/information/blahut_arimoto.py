@@ -18,6 +18,10 @@ optimal probability is 0; here each step also tries a Newton step on the KKT con
 ``_ba_kernel``) and keeps the better point, so the tail converges quadratically. The bounds hold for any
 p, so the acceleration cannot spoil the certificate.
 
+Large alphabets (more than ``ACTIVE_SET_ABOVE`` inputs) are solved on small working sets of inputs, with the
+certificate checked over ALL inputs after every working-set solve and the worst violators added until it
+holds (``_active_set``): the Newton step's S x S system stays small while most inputs keep probability 0.
+
 Truncated rows (sum < 1, e.g. a Poisson law on a finite count grid) are completed with ONE overflow
 output that carries the missing mass t_x. That lumped channel is a degraded version of the true one, so
 its capacity is a valid lower bound; conversely lumping a set L of outputs loses at most
@@ -49,22 +53,27 @@ from scipy import special
 from capacity import _jax  # noqa: F401  (float64)
 from capacity._inputs import real_array, real_number, whole_number
 from capacity.errors import InputError
+from capacity.information import _active_set as active_set
 from capacity.information import _ba_kernel as kernel
 from capacity.information.result import CapacityResult
 
 __all__ = ["blahut_arimoto", "capacity_cost_curve", "mutual_information"]
 
 LN2 = math.log(2.0)
+ACTIVE_SET_ABOVE = 64  # more inputs than this: working sets (``_active_set``) instead of one S x S Newton solve
 
 
 class _Prepared(NamedTuple):
-    w: jax.Array  # (S', Y') rows summing to 1 (overflow column), zero-padded to a bucket size
-    negent: jax.Array  # (S',) sum_y W ln W
-    valid: jax.Array  # (S',) True for real symbols, False for padding
+    w: jax.Array | None  # (S', Y') rows summing to 1 (overflow column), zero-padded to a bucket size;
+    #                      None for large alphabets (S > ACTIVE_SET_ABOVE), served by working sets
+    negent: jax.Array | None  # (S',) sum_y W ln W
+    valid: jax.Array | None  # (S',) True for real symbols, False for padding
     n_sym: int  # S
     tail_bits: float  # max_x (lumped mass) * log2 S
     n_outputs: int  # Y' kept (overflow included)
     n_given: int  # Y given
+    w_np: np.ndarray  # (S, Y') the same rows, unpadded in S (NumPy)
+    negent_np: np.ndarray  # (S,)
 
 
 def _matrix_of(transition) -> tuple[np.ndarray, np.ndarray]:
@@ -114,7 +123,8 @@ def _prepare(transition, tol: float) -> _Prepared:
     need_overflow = n_lump > 0 or tail.max() > 0
     n_cols = n_kept + int(need_overflow)
     # pad to bucket sizes so that a few compiled kernels serve every shape (zero rows/columns are inert)
-    s_pad, y_pad = _bucket(n_sym, 8), _bucket(n_cols, 64)
+    large = n_sym > ACTIVE_SET_ABOVE
+    s_pad, y_pad = (n_sym if large else _bucket(n_sym, 8)), _bucket(n_cols, 64)
     w_pad = np.zeros((s_pad, y_pad))
     w_pad[:n_sym, :n_kept] = w[:, keep] if n_lump else w
     if need_overflow:  # rows completed to 1 by the overflow output (mass = tail + lumped columns)
@@ -122,8 +132,11 @@ def _prepare(transition, tol: float) -> _Prepared:
     real = w_pad[:n_sym, :n_cols]
     neg_pad = np.zeros(s_pad)
     neg_pad[:n_sym] = special.xlogy(real, real).sum(axis=1)
+    tail_bits = float(lumped.max()) * log_s
+    if large:
+        return _Prepared(None, None, None, n_sym, tail_bits, n_cols, n_out, w_pad, neg_pad)
     return _Prepared(jnp.asarray(w_pad), jnp.asarray(neg_pad), jnp.asarray(np.arange(s_pad) < n_sym), n_sym,
-                     float(lumped.max()) * log_s, n_cols, n_out)
+                     tail_bits, n_cols, n_out, w_pad[:n_sym], neg_pad[:n_sym])
 
 
 def _bucket(n: int, minimum: int) -> int:
@@ -175,6 +188,9 @@ class _Point(NamedTuple):
 
 
 def _run(prep: _Prepared, b: np.ndarray, s: float, p0: np.ndarray, tol: float, max_iter: int) -> _Point:
+    if prep.w is None:  # large alphabet: working sets, certificate over all inputs
+        sol = active_set.solve(prep.w_np, prep.negent_np, b, float(s), p0, tol * LN2, max_iter)
+        return _Point(float(s), sol.p, sol, float(sol.p @ b))
     sol = kernel.solve(prep.w, prep.negent, _pad(b, prep), jnp.asarray(s, dtype=jnp.float64), prep.valid,
                        _pad(p0, prep), jnp.asarray(tol * LN2), jnp.asarray(max_iter))
     p = np.asarray(sol.p)[: prep.n_sym]
@@ -182,6 +198,8 @@ def _run(prep: _Prepared, b: np.ndarray, s: float, p0: np.ndarray, tol: float, m
 
 
 def _pad(v: np.ndarray, prep: _Prepared) -> jax.Array:
+    if prep.valid is None:
+        return v
     out = np.zeros(prep.valid.shape[0])
     out[: prep.n_sym] = v
     return jnp.asarray(out)
@@ -201,7 +219,7 @@ def _result(prep, point: _Point, b, tol, iterations, extra="", slope_bits=None) 
         msg = f"stopped at max_iter with gap {gap_bits:.1e} bits {how}"
     if prep.tail_bits > 0:
         msg += (f"; + {prep.tail_bits:.1e} bits for the truncated/lumped output mass "
-                f"({prep.n_outputs} of {prep.n_given} outputs kept)")
+                f"({prep.n_outputs - 1} of {prep.n_given} outputs kept, plus one overflow output)")
     msg += extra
     slope = point.s / LN2 if slope_bits is None else slope_bits
     return CapacityResult(float(sol.ev.info) / LN2, point.p, gap_bits + prep.tail_bits, point.cost, its,
@@ -214,12 +232,7 @@ def _mix(prep, b, a: _Point, other_p: np.ndarray, other_cost: float, budget: flo
     theta = float(np.clip(theta, 0.0, 1.0))
     p = theta * a.p + (1.0 - theta) * other_p
     p = p / p.sum()
-    w = np.asarray(prep.w)[: prep.n_sym]
-    q = p @ w
-    d = np.asarray(prep.negent)[: prep.n_sym] - w @ np.log(np.maximum(q, kernel.TINY))
-    info = float(p @ d)
-    objective = info - s * float(p @ b)
-    ev = kernel.Evaluation(d, q, info, objective, float(np.max(d - s * b)) - objective)
+    ev = active_set.evaluate(p, prep.w_np, prep.negent_np, b, s)
     sol = a.sol._replace(p=_pad(p, prep), ev=ev)
     return _Point(s, p, sol, float(p @ b))
 
@@ -272,7 +285,7 @@ def _budget_result(prep, b, budget, tol, max_iter, unconstrained: _Point, hi, it
         return _result(prep, unconstrained, b, tol, iterations, "; budget not binding (slope 0)"), None
     if budget <= b_min * (1 + 1e-12):
         cheapest = np.flatnonzero(b <= b_min * (1 + 1e-12))
-        sub = blahut_arimoto(np.asarray(prep.w)[cheapest], tol=tol, max_iter=max_iter)  # rows sum to 1
+        sub = blahut_arimoto(prep.w_np[cheapest], tol=tol, max_iter=max_iter)  # rows sum to 1
         p = np.zeros(len(b))
         p[cheapest] = sub.input_distribution
         return CapacityResult(sub.capacity, p, sub.gap + prep.tail_bits, float(p @ b), sub.iterations,

@@ -76,6 +76,11 @@ class Geometry(NamedTuple):
     n_total: jax.Array  # int64 molecules of this emitter
     adapt: jax.Array  # c in m = d^2/(c D dt); 0 means fixed steps of one tick
     correction: jax.Array  # int: index into CORRECTIONS
+    # uniform flow and reactive spheres (see _drift, _reaction); the defaults give still fluid, no reactive sphere
+    flow: jax.Array | tuple = (0.0, 0.0, 0.0)  # (3,) m/s
+    reactive: jax.Array | bool = False  # (R,) bool: absorbing sphere with a finite surface reaction rate
+    reactivity: jax.Array | float = 0.0  # (R,) kappa / D, 1/m (reactive spheres)
+    capture: jax.Array | float = 1.0  # (R,) eventual-capture factor of a survivor (reactive: kappa a / (...))
     # reflecting walls (see _reflect) and the release pulse; the defaults give none of either
     n_walls: jax.Array | int = 0  # 0, 1 (fluid where z > wall_lower) or 2 (wall_lower < z < wall_upper)
     wall_normal: jax.Array | tuple = (0.0, 0.0, 1.0)  # (3,) unit normal of the first wall, z = normal . x
@@ -204,6 +209,74 @@ def _reflect(x, geom: Geometry):
     return x + (z_new - z)[:, None] * normal[None, :]
 
 
+_REACTION_SALT = np.uint64(0x8CB92BA72F3D8DD7)
+#: a step's drift displacement |v| h is kept below this fraction of the distance to the nearest absorbing surface
+DRIFT_FRACTION = 0.25
+
+
+def _drift(geom: Geometry, h):
+    """Drift displacement ``v h`` (C, 3) of a step of ``h`` (C,) seconds: exact for a uniform flow (the free step
+    is ``x + v h + sqrt(2 D h) z``). Conditioned on both end points the path is the driftless Brownian bridge (the
+    Girsanov density depends on the end points only), so the crossing probabilities below keep their meaning."""
+    return h[:, None] * jnp.asarray(geom.flow, jnp.float64)[None, :]
+
+
+def _drift_cap(m, dmin, geom: Geometry):
+    """Shorten a step (m ticks) so that the drift moves a molecule at most DRIFT_FRACTION of its distance to the
+    nearest absorbing surface (the radial crossing formula is exact without drift; with drift it is exact in the
+    planar limit, i.e. for steps short against the distance)."""
+    speed = jnp.sqrt(jnp.sum(jnp.square(jnp.asarray(geom.flow, jnp.float64))))
+    limit = jnp.floor(DRIFT_FRACTION * dmin / jnp.maximum(speed * geom.dt, 1e-300))
+    return jnp.where(speed > 0.0, jnp.maximum(jnp.minimum(m, limit.astype(jnp.int64)), 1), m)
+
+
+def _reaction(geom: Geometry, s: State, d1, d2, d_h, u):
+    """Reactive spheres: ``(reacted (C, R) bool, push (C, R) m)`` for one step (zeros when none is reactive).
+
+    The surface is treated as a plane (steps are short against the radius near a surface). Skorokhod reflection
+    of the free path with the Robin condition ``D dc/dn = kappa c``: given the free end points at surface
+    distances ``y1 >= 0`` and ``y2`` (signed), the path is a driftless Brownian bridge whatever the flow; its
+    lowest point is drawn from ``P(min < m) = exp(-(y1 - m)(y2 - m)/(D h))`` (``m <= min(y1, y2)``), the
+    reflection pushes the path by ``L = max(0, -min)`` along the normal, and the molecule reacts with probability
+    ``1 - exp(-(kappa/D) L)``; otherwise its end point is pushed out by ``L``. Integrated over the bridge this
+    reproduces the half-space Robin Green's function ``G(y2-y1) + G(y2+y1) - 2 lam int_0^inf e^(-lam l)
+    G(y1+y2+l) dl`` (Carslaw & Jaeger 1959, Sec. 14.2 [memory]; the reactive-boundary particle scheme of Erban &
+    Chapman, Phys. Biol. 4, 16, 2007, takes instead a fixed probability ``kappa sqrt(pi dt / D)`` per crossing,
+    correct to first order in sqrt(dt); the bridge form here has no step-size error for a plane).
+    """
+
+    def react():
+        n_words = u.shape[1]
+        lane = jnp.arange(1, n_words + 1, dtype=jnp.uint64)
+        index = s.nstep.astype(jnp.uint64)[:, None] * np.uint64(n_words) + lane[None, :]
+        u2 = _unit(mix64((s.key ^ _REACTION_SALT)[:, None] + _GOLDEN * index))
+        y1 = jnp.maximum(d1, 0.0)
+        lowest = 0.5 * ((y1 + d2) - jnp.sqrt((y1 - d2) ** 2 - 4.0 * d_h * jnp.log(u)))
+        reactive = jnp.broadcast_to(jnp.asarray(geom.reactive, bool), d2.shape[-1:])
+        push = jnp.where(reactive[None, :], jnp.maximum(-lowest, 0.0), 0.0)
+        lam = jnp.asarray(geom.reactivity, jnp.float64)
+        reacted = (push > 0.0) & (u2 < -jnp.expm1(-lam * push))
+        return reacted, jnp.where(reacted, 0.0, push)
+
+    def none():
+        return jnp.zeros(d2.shape, bool), jnp.zeros(d2.shape)
+
+    return lax.cond(jnp.any(geom.reactive), react, none)
+
+
+def _push_out(x2, r2, d2, push, rel2, geom: Geometry):
+    """Move end points out of reactive spheres along the radial direction by the reflection ``push`` (C, R)."""
+
+    def moved():
+        unit = rel2 / jnp.maximum(r2, 1e-300)[..., None]
+        x = x2 + jnp.sum(push[..., None] * unit, axis=1)
+        rel = x[:, None, :] - geom.centres[None, :, :]
+        r = jnp.sqrt(jnp.sum(rel * rel, axis=-1))
+        return x, r, r - geom.radii
+
+    return lax.cond(jnp.any(push > 0.0), moved, lambda: (x2, r2, d2))
+
+
 def _iteration(cfg: Config, geom: Geometry, s: State) -> State:
     big = jnp.int64(2**62)
     n_sph = geom.radii.shape[0]
@@ -218,6 +291,7 @@ def _iteration(cfg: Config, geom: Geometry, s: State) -> State:
     scale = jnp.where(geom.adapt > 0.0, geom.adapt * geom.diffusion * geom.dt, 1.0)
     m_f = jnp.where(geom.adapt > 0.0, jnp.floor(dmin * dmin / scale), 1.0)
     m = jnp.clip(m_f, 1.0, n_slot.astype(jnp.float64)).astype(jnp.int64)
+    m = _drift_cap(m, dmin, geom)
     next_bound = (s.t // n_slot + 1) * n_slot
     passive = geom.passive
     after = s.t[:, None] >= geom.offsets[None, :]
@@ -234,19 +308,22 @@ def _iteration(cfg: Config, geom: Geometry, s: State) -> State:
     h = h_ticks * geom.dt
 
     z, u = _gaussian_and_uniform(s.key, s.nstep, n_sph)
-    x2 = s.x + jnp.sqrt(2.0 * geom.diffusion * h)[:, None] * z
+    x2 = s.x + jnp.sqrt(2.0 * geom.diffusion * h)[:, None] * z + _drift(geom, h)
     rel2 = x2[:, None, :] - geom.centres[None, :, :]
     r2 = jnp.sqrt(jnp.sum(rel2 * rel2, axis=-1))
     d2 = r2 - geom.radii
     d_h = jnp.maximum(geom.diffusion * h, 1e-300)[:, None]
     p = _crossing(jnp.maximum(d1, 0.0), jnp.maximum(d2, 0.0), r1, r2, d_h, geom.correction)
-    inside_end = geom.absorbing[None, :] & (d2 <= 0.0)
-    touched = geom.absorbing[None, :] & (d2 > 0.0) & (u < p)
-    score = jnp.where(inside_end, 2.0, jnp.where(touched, p, -1.0))
+    reacted, push = _reaction(geom, s, d1, d2, d_h, u)
+    perfect = geom.absorbing & ~jnp.asarray(geom.reactive, bool)
+    inside_end = perfect[None, :] & (d2 <= 0.0)
+    touched = perfect[None, :] & (d2 > 0.0) & (u < p) | reacted
+    score = jnp.where(inside_end, 2.0, jnp.where(reacted, 1.5, jnp.where(touched, p, -1.0)))
     which = jnp.argmax(score, axis=1)
     absorbed = active & jnp.any(inside_end | touched, axis=1)
     slot = jnp.clip(s.t // n_slot, 0, cfg.memory)
     counts = s.counts.at[which, slot].add(absorbed.astype(jnp.int64))
+    x2, r2, d2 = _push_out(x2, r2, d2, push, rel2, geom)
 
     # absorption was tested on the unfolded path (image spheres included); the rest sees the folded end point
     x2, r2, d2 = lax.cond(geom.n_walls > 0, lambda: _folded(x2, geom), lambda: (x2, r2, d2))
@@ -260,7 +337,7 @@ def _iteration(cfg: Config, geom: Geometry, s: State) -> State:
 
     at_horizon = alive & (t2 >= horizon)
     root = jnp.sqrt(geom.degradation / geom.diffusion)
-    lone = geom.radii / r2 * jnp.exp(-jnp.maximum(d2, 0.0) * root)
+    lone = geom.capture * geom.radii / r2 * jnp.exp(-jnp.maximum(d2, 0.0) * root)
     lone = jnp.where(geom.absorbing[None, :] & at_horizon[:, None], lone, 0.0)
     idx = jnp.where(at_horizon & (s.mid < cfg.store), s.mid, cfg.store)
     positions = s.positions.at[idx].set(x2, mode="drop")

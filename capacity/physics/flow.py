@@ -110,7 +110,7 @@ def _mode_ratios(x_out, x_in, n_max: int):
     def step(carry, i):
         u_out, u_in, rho = carry
         rho_next = rho * u_out / u_in
-        order = 2.0 * i + 1.0
+        order = _cx(2.0 * i + 1.0)
         return (1.0 / u_out + order / x_out, 1.0 / u_in + order / x_in, rho_next), (rho, u_in)
 
     init = (1.0 + 1.0 / x_out, 1.0 + 1.0 / x_in, jnp.ones_like(x_out))
@@ -238,6 +238,26 @@ def _passive_all(emitters, centres, radii, offsets, diffusion, degradation, flow
                   symbol_interval=symbol_interval, memory=memory)
     over_receivers = jax.vmap(one, in_axes=(None, 0, 0, 0))
     return jax.vmap(over_receivers, in_axes=(0, None, None, None))(emitters, centres, radii, offsets)
+
+
+def flow_hits_traced(emitters, centres, radii, passive, rates, sample_offsets, diffusion, degradation, flow,
+                     symbol_interval, memory: int):
+    """:func:`flow_hits` for traced inputs (JAX arrays out, differentiable in every float argument); ``passive``
+    (R,) and ``rates`` (R,) m/s must be concrete (numpy)."""
+    passive = np.asarray(passive, dtype=bool)
+    rates = np.asarray(rates, dtype=float)
+    inverse = jnp.asarray(np.where(np.isinf(rates) | passive, 0.0, 1.0 / np.where(rates > 0.0, rates, 1.0)))
+    emitters, centres, radii, offsets = (jnp.asarray(v, dtype=jnp.float64) for v in
+                                         (emitters, centres, radii, sample_offsets))
+    args = tuple(jnp.asarray(v, dtype=jnp.float64) for v in (diffusion, degradation, flow, symbol_interval))
+    hits = jnp.zeros((emitters.shape[0], radii.shape[0], int(memory) + 1))
+    tail = jnp.zeros((emitters.shape[0], radii.shape[0]))
+    for mask, fn, extra in ((~passive, _absorbing_all, inverse), (passive, _passive_all, offsets)):
+        idx = np.flatnonzero(mask)
+        if idx.size:
+            h, t = fn(emitters, centres[idx], radii[idx], extra[idx], *args, memory=int(memory))
+            hits, tail = hits.at[:, idx].set(h), tail.at[:, idx].set(t)
+    return hits, tail
 
 
 def flow_hits(emitters, centres, radii, passive, rates, sample_offsets, diffusion, degradation, flow,

@@ -95,6 +95,8 @@ def simulate_hits(
     progress: bool = False,
     walls=None,
     pulses=None,
+    reaction_rates=None,
+    flow=None,
 ):
     """Hit probabilities of every emitter-receiver pair by Brownian simulation of the whole layout.
 
@@ -122,6 +124,15 @@ def simulate_hits(
         Molecules far from every absorbing surface take longer steps (whole multiples of dt, about
         ``d^2/(16 D)``), always ending on slot boundaries and passive sampling instants.
     progress : show a tqdm progress bar (one update per kernel call).
+    reaction_rates : (R,) m/s or None: surface reaction rate kappa of each sphere (Robin condition
+        ``D dc/dn = kappa c``); ``inf`` (or None for all) is a perfectly absorbing sphere; ignored for passive ones.
+        A reactive sphere reflects the path (Skorokhod reflection, planar near the surface) and takes the molecule
+        with probability ``1 - exp(-kappa L / D)``, ``L`` the reflection's push (see
+        :func:`capacity.physics._particles_kernel._reaction`).
+    flow : (3,) m/s or None: uniform flow; each step moves by ``v h + sqrt(2 D h) z`` (exact), and the drift of a
+        step is kept below a quarter of the distance to the nearest absorbing surface. Survivors' tails for
+        absorbing and reactive spheres then come from the lone model in the flow (:mod:`capacity.physics.flow`)
+        at their final positions (the first ``STORE`` molecules).
     walls : :class:`capacity.physics.images.WallGeometry` (one reflecting wall or a channel) or None. Every step's
         end point is folded back into the fluid (exact for reflected Brownian motion); each absorbing sphere is
         tested together with its mirror images (one per wall; in a channel also the two-bounce images), since a
@@ -175,6 +186,8 @@ def simulate_hits(
         progress=progress,
         walls=walls,
         pulses=pulses,
+        reaction_rates=reaction_rates,
+        flow=flow,
     )
     return sim.hits, sim.tail, sim.stderr
 
@@ -200,6 +213,8 @@ def _simulate(
     block: int = BLOCK,
     walls=None,
     pulses=None,
+    reaction_rates=None,
+    flow=None,
 ) -> Simulation:
     """:func:`simulate_hits` with the knobs tests and benchmarks need.
 
@@ -217,10 +232,11 @@ def _simulate(
         particles, seed, time_step,
     )
     pulse_s = _pulse_array(pulses, inp.emitters.shape[0], inp.symbol_interval)
+    react = _reaction_fields(reaction_rates, flow, inp, owner, n_real)
     wall_fields = _wall_fields(walls)
     if correction not in _k.CORRECTIONS:
         raise ValueError(f"correction must be one of {_k.CORRECTIONS}")
-    dt_wanted = inp.time_step if inp.time_step is not None else auto_time_step(inp)
+    dt_wanted = inp.time_step if inp.time_step is not None else _flow_step(auto_time_step(inp), inp, react)
     n_slot = max(1, int(math.ceil(inp.symbol_interval / dt_wanted - 1e-9)))
     dt = inp.symbol_interval / n_slot
     offsets = np.rint(inp.sample_offsets / dt).astype(np.int64)
@@ -264,6 +280,7 @@ def _simulate(
             adapt=jnp.asarray(float(adapt)),
             correction=jnp.asarray(_k.CORRECTIONS.index(correction)),
             pulse=jnp.asarray(pulse_s[i] / dt),
+            **_padded(react, pad),
             **wall_fields,
         )
         state = _k.initial_state(cfg, geom, n_pad)
@@ -288,6 +305,9 @@ def _simulate(
         pos = np.asarray(state.positions)
         ids.append(np.flatnonzero(np.isfinite(pos[:, 0])))
         positions.append(pos[ids[-1]])
+        if react["moving"]:
+            tail[i], tail_se[i] = _flow_tails(positions[-1], min(inp.particles, STORE), inp, react, tail[i],
+                                              tail_se[i])
         for j in np.flatnonzero(inp.passive):
             tail[i, j], tail_se[i, j] = passive_tail(
                 positions[-1], min(inp.particles, STORE), inp.centres[j], inp.radii[j], offsets[j] * dt,
@@ -308,6 +328,70 @@ def _simulate(
     stderr = np.sqrt(hits * (1.0 - hits) / n)
     return Simulation(hits, tail, stderr, dt, n_slot, offsets * dt, tail_se, positions, ids, steps, ticks, survivors,
                       occupancy)
+
+
+def _reaction_fields(reaction_rates, flow, inp, owner, n_real) -> dict:
+    """Per-sphere reaction settings (image spheres take those of the sphere they mirror) and the flow."""
+    from capacity.errors import InputError
+
+    n_sph = inp.radii.shape[0]
+    rates = np.full(n_real if owner is not None else n_sph, np.inf)
+    if reaction_rates is not None:
+        given = np.asarray(reaction_rates, dtype=float).reshape(-1)
+        real_passive = inp.passive[: rates.shape[0]]
+        if given.shape != rates.shape or np.any(np.isnan(given)) or np.any((given <= 0.0) & ~real_passive):
+            raise InputError("reaction_rates", np.asarray(reaction_rates).tolist(),
+                             f"must hold one rate > 0 per sphere ({rates.shape[0]}), inf for a perfect absorber",
+                             "give e.g. [2e-5, inf] (m/s)")
+        rates = given
+    if owner is not None:
+        rates = rates[owner]
+    rates = np.where(inp.passive, np.inf, rates)
+    velocity = np.zeros(3) if flow is None else np.asarray(flow, dtype=float).reshape(-1)
+    if velocity.shape != (3,) or not np.all(np.isfinite(velocity)):
+        raise InputError("flow", np.asarray(flow).tolist(), "must be a finite velocity vector of 3 components",
+                         "give e.g. [1e-5, 0, 0] (m/s)")
+    reactive = np.isfinite(rates) & ~inp.passive
+    lam = np.where(reactive, rates / inp.diffusion, 0.0)
+    root = np.sqrt(inp.degradation * inp.diffusion)
+    finite = np.where(reactive, rates, 1.0)
+    capture = np.where(reactive, finite * inp.radii / (finite * inp.radii + inp.diffusion + inp.radii * root), 1.0)
+    return {"rates": rates, "reactive": reactive, "reactivity": lam, "capture": capture, "flow": velocity,
+            "moving": bool(np.any(velocity != 0.0))}
+
+
+def _padded(react: dict, pad: int) -> dict:
+    """Kernel Geometry fields of :func:`_reaction_fields`, padded with inert spheres."""
+    return dict(flow=jnp.asarray(react["flow"]),
+                reactive=jnp.asarray(np.concatenate([react["reactive"], np.zeros(pad, bool)])),
+                reactivity=jnp.asarray(np.concatenate([react["reactivity"], np.zeros(pad)])),
+                capture=jnp.asarray(np.concatenate([react["capture"], np.ones(pad)])))
+
+
+def _flow_step(dt: float, inp, react: dict) -> float:
+    """The automatic base step, shortened in a flow so that one step drifts at most 0.1 of the smallest length
+    (absorbing radius, emitter gap) the automatic rule uses."""
+    speed = float(np.linalg.norm(react["flow"]))
+    if speed == 0.0:
+        return dt
+    ell = math.sqrt(100.0 * inp.diffusion * dt)  # the length behind dt = l^2 / (100 D) (or longer, if Ts-bound)
+    return min(dt, 0.1 * ell / speed)
+
+
+def _flow_tails(positions, n_used: int, inp, react: dict, tail, tail_se):
+    """Absorbing and reactive tails in a flow: mean over the first ``n_used`` molecules of the lone eventual
+    capture in the flow from each survivor's final position (non-survivors contribute 0)."""
+    from capacity.physics.flow import eventual_capture
+
+    tail, tail_se = tail.copy(), tail_se.copy()
+    if n_used == 0:
+        return tail, tail_se
+    for j in np.flatnonzero(~inp.passive):
+        per = np.asarray(eventual_capture(positions, inp.centres[j], inp.radii[j], react["rates"][j],
+                                          inp.diffusion, inp.degradation, react["flow"]))
+        tail[j] = float(np.sum(per) / n_used)
+        tail_se[j] = float(np.sqrt(max(np.sum(per * per) / n_used - tail[j] ** 2, 0.0) / n_used))
+    return tail, tail_se
 
 
 def _with_wall_images(emitters, centres, radii, passive, sample_offsets, walls):

@@ -49,6 +49,8 @@ class Layout(NamedTuple):
     receiver_names: tuple[str, ...]
     walls: object = None  # capacity.physics.images.WallGeometry, or None without walls
     pulses: np.ndarray | None = None  # (E,) s, release durations (None or 0: impulses)
+    rates: np.ndarray | None = None  # (R,) m/s surface reaction rates (inf: absorbing), None: all absorbing
+    flow: np.ndarray | None = None  # (3,) m/s uniform flow, None: still fluid
 
 
 def _positive(field, value):
@@ -75,9 +77,9 @@ def layout_arrays(scenario) -> Layout:
     passive = np.empty(len(scenario.receivers), dtype=bool)
     for j, rec in enumerate(scenario.receivers):
         _positive(f"receiver[{j}].radius", rec.radius)
-        if rec.kind not in ("absorbing", "passive"):
+        if rec.kind not in ("absorbing", "passive", "reactive"):
             raise InputError(f"receiver[{j}].kind", rec.kind, "unknown receiver kind",
-                             "use 'absorbing' or 'passive'")
+                             "use 'absorbing', 'reactive' or 'passive'")
         passive[j] = rec.kind == "passive"
         off = ts if rec.sample_offset is None else float(rec.sample_offset)
         if not (0.0 < off <= ts):
@@ -100,6 +102,12 @@ def layout_arrays(scenario) -> Layout:
 
 def _lone_arrays(lay: Layout, memory: int):
     from capacity.physics.lone import lone_hits
+    from capacity.physics.transport import has_transport
+
+    if has_transport(lay):
+        from capacity.physics.transport import lone_arrays as transport_arrays
+
+        return transport_arrays(lay, memory)
 
     if lay.walls is not None or np.any(lay.pulses > 0.0):
         from capacity.physics.walled import lone_arrays
@@ -155,6 +163,12 @@ def _lone(lay: Layout, memory: int, options: dict, lone):
 
 def _shadowed(lay: Layout, memory: int, options: dict, lone):
     from capacity.physics.shadowed import shadowed_hits, validity_notes
+    from capacity.physics.transport import has_transport
+
+    if has_transport(lay):
+        from capacity.physics.transport import shadowed_arrays
+
+        return shadowed_arrays(lay, memory, options, lone, _particles)
 
     shape = (lay.emitters.shape[0], lay.centres.shape[0])
     hits, tail = np.zeros(shape + (memory + 1,)), np.zeros(shape)
@@ -210,7 +224,7 @@ def _particles(lay: Layout, memory: int, options: dict, lone):
                                        lay.diffusion, lay.degradation, lay.symbol_interval, memory,
                                        particles=int(options["particles"]), seed=int(options["seed"]),
                                        time_step=options["time_step"], progress=options["progress"],
-                                       walls=lay.walls, pulses=lay.pulses)
+                                       walls=lay.walls, pulses=lay.pulses, reaction_rates=lay.rates, flow=lay.flow)
     hits, tail = np.array(hits, dtype=np.float64), np.array(tail, dtype=np.float64)
     notes = [f"particles model: {int(options['particles'])} molecules per emitter, seed {int(options['seed'])}"]
     if lay.passive.any():
@@ -270,7 +284,7 @@ def channel_response(scenario, model=None, *, memory=None, particles=None, seed=
     name = ch.response if model is None else model
     if name not in MODELS:
         raise InputError("channel.response", name, "unknown response model", f"use one of {sorted(MODELS)}")
-    lay = layout_arrays(scenario)
+    lay = layout_arrays(scenario)._replace(rates=scenario.reaction_rates, flow=scenario.flow)
     setting = ch.memory if memory is None else memory
     notes = []
     if isinstance(setting, str):

@@ -9,6 +9,8 @@ these models were measured against the particle simulator.
 
 from __future__ import annotations
 
+from typing import NamedTuple
+
 import numpy as np
 
 from capacity.errors import InputError
@@ -110,3 +112,46 @@ def shadowed_arrays(lay, memory: int, options: dict, lone, particles):
     return hits, tail, stderr, ["shadowed model: several absorbing or reactive receivers with a flow or a reactive "
                                 "surface are not covered by the renewal model: switched to the particle "
                                 "simulator"] + more + notes
+
+
+class Transport(NamedTuple):
+    """Hashable flow / reaction settings of a design problem: rates (R,) m/s (inf: absorbing, 0: passive) and
+    flow (3,) m/s, as tuples of floats."""
+
+    rates: tuple
+    flow: tuple
+
+
+def transport_spec(scenario) -> Transport | None:
+    """The scenario's :class:`Transport`, or None when it has neither a flow nor a reactive receiver."""
+    rates = tuple(float(x) for x in scenario.reaction_rates)
+    flow = tuple(float(x) for x in scenario.medium.flow)
+    reactive = any(r.kind == "reactive" for r in scenario.receivers)
+    return Transport(rates, flow) if reactive or any(v != 0.0 for v in flow) else None
+
+
+def design_hits(spec: Transport, emitters, centres, radii, passive, offsets, diffusion, degradation,
+                symbol_interval, memory: int):
+    """Differentiable ``(hits (E, R, L+1), tail (E, R))`` for the design stage (JAX arrays; ``passive`` a
+    concrete bool mask): the flow series of :mod:`capacity.physics.flow` with a flow, else the lone closed forms
+    with the reactive columns from :mod:`capacity.physics.reactive`."""
+    import jax.numpy as jnp
+
+    from capacity.physics.flow import flow_hits_traced
+    from capacity.physics.lone import lone_hits
+    from capacity.physics.reactive import reactive_hits
+
+    passive = np.asarray(passive, dtype=bool)
+    rates = np.where(passive, np.inf, np.asarray(spec.rates, dtype=float))
+    flow = np.asarray(spec.flow, dtype=float)
+    if np.any(flow != 0.0):
+        return flow_hits_traced(emitters, centres, radii, passive, rates, offsets, diffusion, degradation,
+                                jnp.asarray(flow), symbol_interval, memory)
+    hits, tail = lone_hits(emitters, centres, radii, jnp.asarray(passive), offsets, diffusion, degradation,
+                           symbol_interval, memory)
+    reactive = np.flatnonzero(np.isfinite(rates))
+    if reactive.size:
+        rh, rt = reactive_hits(emitters, centres[reactive], radii[reactive], jnp.asarray(rates[reactive]),
+                               diffusion, degradation, symbol_interval, memory)
+        hits, tail = hits.at[:, reactive].set(rh), tail.at[:, reactive].set(rt)
+    return hits, tail

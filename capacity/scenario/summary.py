@@ -28,14 +28,20 @@ def scenario_warnings(s: Scenario) -> list[str]:
     return list(geometry_warnings(s)) + magnitude_warnings(s)
 
 
-def lone_capture(radius: float, gap: float, diffusion: float, degradation: float = 0.0) -> float:
-    """Eventual fraction of molecules from a point source absorbed by one lone absorbing sphere.
+def lone_capture(radius: float, gap: float, diffusion: float, degradation: float = 0.0,
+                 reaction_rate: float | None = None) -> float:
+    """Eventual fraction of molecules from a point source absorbed by one lone absorbing sphere (still fluid).
 
     ``r/(r+d) * exp(-d sqrt(k/D))`` with r the radius (m), d the gap from the source to the surface (m), D in
     m^2/s and k the degradation rate in 1/s (Yilmaz et al., IEEE Commun. Lett. 18(6), 2014; the degradation
-    factor from Heren et al., IEEE TMBMC 1(2), 2015).
+    factor from Heren et al., IEEE TMBMC 1(2), 2015). A reactive sphere (``reaction_rate`` kappa, m/s) takes the
+    factor ``kappa r / (kappa r + D + r sqrt(k D))`` more (:func:`capacity.physics.reactive.reactive_total`).
     """
-    return radius / (radius + gap) * math.exp(-gap * math.sqrt(degradation / diffusion))
+    factor = 1.0
+    if reaction_rate is not None:
+        factor = reaction_rate * radius / (reaction_rate * radius + diffusion + radius * math.sqrt(degradation
+                                                                                                  * diffusion))
+    return factor * radius / (radius + gap) * math.exp(-gap * math.sqrt(degradation / diffusion))
 
 
 def passive_fraction(t, distance: float, radius: float, diffusion: float, degradation: float = 0.0):
@@ -96,8 +102,8 @@ def summarise(s: Scenario) -> dict:
         for j, r in enumerate(s.receivers):
             dist = float(np.linalg.norm(em[i] - rc[j]))
             gap = dist - float(radii[j])
-            if r.kind == "absorbing":
-                capture, fraction = lone_capture(float(radii[j]), gap, dcoef, k), None
+            if r.kind in ("absorbing", "reactive"):
+                capture, fraction = lone_capture(float(radii[j]), gap, dcoef, k, r.reaction_rate), None
                 peak = float(hitting_peak_time(gap, dcoef, k))
             else:
                 capture = None
@@ -138,6 +144,7 @@ def summarise(s: Scenario) -> dict:
         "pairs": pairs,
         "receiver_gaps": gaps,
         "warnings": scenario_warnings(s),
+        "flow": flow_summary(s),
         "walls": wall_summary(s),
         "pulses": {e.name: float(e.pulse) for e in s.emitters if e.pulse > 0.0},
     }
@@ -162,6 +169,26 @@ def wall_summary(s: Scenario) -> list[dict]:
                               for r in s.receivers},
         })
     return out
+
+
+def flow_summary(s: Scenario) -> dict | None:
+    """Flow figures, or None in a still fluid: ``velocity`` (3,) m/s, ``speed`` m/s, ``peclet`` (receiver name ->
+    |v| a / D, the bead's Peclet number) and ``gap_peclet`` (``emitter -> receiver`` -> |v| d / D with d the gap:
+    above ~1 the flow carries molecules across the gap faster than they diffuse). The lone captures and peak
+    times of the pair table are those of a still fluid."""
+    v = np.asarray(s.medium.flow, dtype=float)
+    speed = float(np.linalg.norm(v))
+    if speed == 0.0:
+        return None
+    dcoef = float(s.medium.diffusion)
+    em, rc, radii = s.emitter_positions, s.receiver_centres, s.receiver_radii
+    return {
+        "velocity": [float(c) for c in v],
+        "speed": speed,
+        "peclet": {r.name: speed * float(radii[j]) / dcoef for j, r in enumerate(s.receivers)},
+        "gap_peclet": {f"{e.name} -> {r.name}": speed * (float(np.linalg.norm(em[i] - rc[j])) - float(radii[j]))
+                       / dcoef for i, e in enumerate(s.emitters) for j, r in enumerate(s.receivers)},
+    }
 
 
 def _table(header: list[str], rows: list[list[str]]) -> list[str]:
@@ -226,6 +253,14 @@ def format_summary(d: dict) -> str:
     if d.get("pulses"):
         out.append("")
         out.append("release pulses: " + ", ".join(f"{n} {p * 1e3:.4g} ms" for n, p in d["pulses"].items()))
+    if d.get("flow"):
+        f = d["flow"]
+        out.append("")
+        out.append("flow: v = (" + ", ".join(_num(c, 1e6) for c in f["velocity"]) + f") µm/s, |v| = "
+                   f"{f['speed'] * 1e6:.4g} µm/s; lone captures and peak times above are for a still fluid")
+        rows = [[name, "receiver (|v| a / D)", _num(pe, fmt=".3g")] for name, pe in f["peclet"].items()]
+        rows += [[name, "gap (|v| d / D)", _num(pe, fmt=".3g")] for name, pe in f["gap_peclet"].items()]
+        out += _table(["Peclet number", "length", "value"], rows)
     if d.get("flow"):
         f = d["flow"]
         out.append("")
