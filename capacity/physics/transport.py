@@ -32,22 +32,39 @@ def has_transport(lay) -> bool:
 
 
 def _refuse_combinations(lay) -> None:
-    walls = getattr(lay, "walls", None)
     pulses = getattr(lay, "pulses", None)
-    if walls is not None or (pulses is not None and np.any(np.asarray(pulses) > 0.0)):
-        raise InputError("channel.response", "lone/shadowed",
-                         "the closed-form models do not combine walls or release pulses with a flow or reactive "
-                         "receivers yet", 'use channel.response = "particles" for this layout')
+    if pulses is not None and np.any(np.asarray(pulses) > 0.0):
+        raise InputError("emitter.pulse", np.asarray(pulses).tolist(),
+                         "the closed-form models do not combine release pulses with a flow or reactive receivers "
+                         "yet", 'use channel.response = "particles" for this layout, or impulse releases')
+
+
+def _images(lay, memory: int):
+    """Receivers replaced by their mirror images across the walls (``copies`` per receiver, cell-major), as in
+    :mod:`capacity.physics.walled`: a flow parallel to the walls is mirror symmetric, so the image layout in free
+    space with the same flow is the walled problem (the validator refuses a flow across a wall)."""
+    walls = getattr(lay, "walls", None)
+    rates = np.where(lay.passive, np.inf, np.asarray(lay.rates, dtype=float))
+    if walls is None:
+        return lay.centres, lay.radii, lay.passive, lay.offsets, rates, 1
+    from capacity.physics import images
+    from capacity.physics.walled import LONE_MAX_DEPTH, _depth
+
+    depth = _depth(lay, memory, LONE_MAX_DEPTH)[0]
+    centres, copies = images.mirror_spheres(lay.centres, walls, depth)
+    return (centres,) + tuple(np.tile(a, copies) for a in (lay.radii, lay.passive, lay.offsets, rates)) + (copies,)
 
 
 def lone_arrays(lay, memory: int):
-    """``(hits (E, R, L+1), tail (E, R))`` of every receiver as if alone, with flow and reactive receivers."""
+    """``(hits (E, R, L+1), tail (E, R))`` of every receiver as if alone, with flow and reactive receivers (and
+    reflecting walls parallel to the flow, by images)."""
+    from capacity.physics import images
     from capacity.physics.flow import flow_hits
     from capacity.physics.lone import lone_hits
     from capacity.physics.reactive import reactive_hits
 
     _refuse_combinations(lay)
-    rates = np.where(lay.passive, np.inf, np.asarray(lay.rates, dtype=float))
+    centres, radii, passive, offsets, rates, copies = _images(lay, memory)
     flow = np.asarray(lay.flow, dtype=float)
     if np.any(flow != 0.0):
         from capacity.physics.flow import MAX_PECLET, peclet_numbers
@@ -59,18 +76,18 @@ def lone_arrays(lay, memory: int):
                              f"gives receiver {lay.receiver_names[j]} a Peclet number |v| a / D = {pe[j]:.3g} above "
                              f"{MAX_PECLET:g}, beyond the precision of the flow series",
                              'use channel.response = "particles", or a slower flow')
-        hits, tail = flow_hits(lay.emitters, lay.centres, lay.radii, lay.passive, rates, lay.offsets,
-                               lay.diffusion, lay.degradation, flow, lay.symbol_interval, memory=memory)
-        return np.asarray(hits, dtype=np.float64), np.asarray(tail, dtype=np.float64)
-    hits, tail = lone_hits(lay.emitters, lay.centres, lay.radii, lay.passive, lay.offsets, lay.diffusion,
-                           lay.degradation, lay.symbol_interval, memory=memory)
+        hits, tail = flow_hits(lay.emitters, centres, radii, passive, rates, offsets, lay.diffusion,
+                               lay.degradation, flow, lay.symbol_interval, memory=memory)
+        return images.fold(hits, copies), images.fold(tail, copies)
+    hits, tail = lone_hits(lay.emitters, centres, radii, passive, offsets, lay.diffusion, lay.degradation,
+                           lay.symbol_interval, memory=memory)
     hits, tail = np.array(hits, dtype=np.float64), np.array(tail, dtype=np.float64)
     reactive = np.flatnonzero(np.isfinite(rates))
     if reactive.size:
-        rh, rt = reactive_hits(lay.emitters, lay.centres[reactive], lay.radii[reactive], rates[reactive],
-                               lay.diffusion, lay.degradation, lay.symbol_interval, memory=memory)
+        rh, rt = reactive_hits(lay.emitters, centres[reactive], radii[reactive], rates[reactive], lay.diffusion,
+                               lay.degradation, lay.symbol_interval, memory=memory)
         hits[:, reactive], tail[:, reactive] = np.asarray(rh), np.asarray(rt)
-    return hits, tail
+    return images.fold(hits, copies), images.fold(tail, copies)
 
 
 def validity_notes(lay) -> list[str]:

@@ -183,7 +183,23 @@ def validate_scenario(s: Scenario) -> Scenario:
     _check_geometry(s)
     _check_pulses(s)
     _check_walls(s)
+    _check_flow_walls(s)
     return s
+
+
+def _check_flow_walls(s: Scenario) -> None:
+    """A uniform flow must run parallel to every wall (fluid cannot pass through a wall)."""
+    v = np.asarray(s.medium.flow, dtype=float)
+    speed = float(np.linalg.norm(v))
+    if speed == 0.0:
+        return
+    for w, n in enumerate(wall_normals(s)):
+        across = float(np.dot(v, n))
+        if abs(across) > 1e-9 * speed:
+            raise InputError("medium.flow", list(s.medium.flow),
+                             f"has a component {across:.3g} m/s across wall[{w}] (normal {list(s.walls[w].normal)}): "
+                             "fluid cannot flow through a wall",
+                             "give a flow parallel to the walls, e.g. along the channel")
 
 
 def _check_pulses(s: Scenario) -> None:
@@ -321,6 +337,40 @@ def _check_emitters_receivers(s: Scenario) -> None:
                 "give a time after the slot start and no later than its end, or leave it out "
                 "to sample at the end of the slot",
             )
+
+
+def _check_flow(s: Scenario) -> None:
+    """``medium.flow``: a finite velocity vector of 3 components, each at most LIMITS["velocity"] m/s."""
+    flow = s.medium.flow
+    fix = 'give a velocity vector [vx, vy, vz] such as flow = ["10 um/s", "0 um/s", "0 um/s"] (m/s)'
+    if not isinstance(flow, (tuple, list, np.ndarray)) or len(flow) != 3:
+        raise InputError("medium.flow", flow, "must be a velocity vector of 3 components [vx, vy, vz]", fix)
+    for k, c in enumerate(flow):
+        _finite(f"medium.flow[{k}]", c, fix)
+        _at_most(f"medium.flow[{k}]", c, LIMITS["velocity"], "m/s", fix + "; check the units")
+
+
+def _check_reaction_rate(f: str, r) -> None:
+    """``reaction_rate``: required, finite and > 0 for reactive receivers; absent for the other kinds."""
+    fix = 'give a surface reaction rate such as reaction_rate = "20 um/s" (m/s)'
+    if r.kind != "reactive":
+        if r.reaction_rate is not None:
+            raise InputError(f"{f}.reaction_rate", r.reaction_rate,
+                             f'is only used by reactive receivers (this one is "{r.kind}")',
+                             'remove reaction_rate, or set kind = "reactive"')
+        return
+    if r.reaction_rate is None:
+        raise InputError(f"{f}.reaction_rate", None, "is missing: a reactive receiver needs its surface reaction rate",
+                         fix)
+    rate = _finite(f"{f}.reaction_rate", r.reaction_rate, fix)
+    if rate < 0.0:
+        raise InputError(f"{f}.reaction_rate", r.reaction_rate, "must not be negative (it is a rate, m/s)", fix)
+    if rate == 0.0:
+        raise InputError(f"{f}.reaction_rate", r.reaction_rate,
+                         "is 0: a receiver that never reacts counts nothing",
+                         fix + ', or kind = "passive" to count the molecules inside without taking them')
+    _at_most(f"{f}.reaction_rate", rate, LIMITS["velocity"] * 1e3, "m/s",
+             'use kind = "absorbing" for a sphere that takes every molecule that touches it')
 
 
 def _check_flow(s: Scenario) -> None:
