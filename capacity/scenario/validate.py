@@ -373,40 +373,6 @@ def _check_reaction_rate(f: str, r) -> None:
              'use kind = "absorbing" for a sphere that takes every molecule that touches it')
 
 
-def _check_flow(s: Scenario) -> None:
-    """``medium.flow``: a finite velocity vector of 3 components, each at most LIMITS["velocity"] m/s."""
-    flow = s.medium.flow
-    fix = 'give a velocity vector [vx, vy, vz] such as flow = ["10 um/s", "0 um/s", "0 um/s"] (m/s)'
-    if not isinstance(flow, (tuple, list, np.ndarray)) or len(flow) != 3:
-        raise InputError("medium.flow", flow, "must be a velocity vector of 3 components [vx, vy, vz]", fix)
-    for k, c in enumerate(flow):
-        _finite(f"medium.flow[{k}]", c, fix)
-        _at_most(f"medium.flow[{k}]", c, LIMITS["velocity"], "m/s", fix + "; check the units")
-
-
-def _check_reaction_rate(f: str, r) -> None:
-    """``reaction_rate``: required, finite and > 0 for reactive receivers; absent for the other kinds."""
-    fix = 'give a surface reaction rate such as reaction_rate = "20 um/s" (m/s)'
-    if r.kind != "reactive":
-        if r.reaction_rate is not None:
-            raise InputError(f"{f}.reaction_rate", r.reaction_rate,
-                             f'is only used by reactive receivers (this one is "{r.kind}")',
-                             'remove reaction_rate, or set kind = "reactive"')
-        return
-    if r.reaction_rate is None:
-        raise InputError(f"{f}.reaction_rate", None, "is missing: a reactive receiver needs its surface reaction rate",
-                         fix)
-    rate = _finite(f"{f}.reaction_rate", r.reaction_rate, fix)
-    if rate < 0.0:
-        raise InputError(f"{f}.reaction_rate", r.reaction_rate, "must not be negative (it is a rate, m/s)", fix)
-    if rate == 0.0:
-        raise InputError(f"{f}.reaction_rate", r.reaction_rate,
-                         "is 0: a receiver that never reacts counts nothing",
-                         fix + ', or kind = "passive" to count the molecules inside without taking them')
-    _at_most(f"{f}.reaction_rate", rate, LIMITS["velocity"] * 1e3, "m/s",
-             'use kind = "absorbing" for a sphere that takes every molecule that touches it')
-
-
 def _check_channel(s: Scenario) -> None:
     c = s.channel
     _positive("channel.symbol_interval", c.symbol_interval, 'give a positive time such as "100 ms" or 0.1 (s)')
