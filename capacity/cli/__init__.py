@@ -33,6 +33,9 @@ def build_parser() -> argparse.ArgumentParser:
             "and how to change it to carry more. Design-stage estimates only."
         ),
     )
+    from capacity import __version__
+
+    parser.add_argument("--version", action="version", version=f"capacity {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     sub.required = True
     for module_name in COMMANDS.values():

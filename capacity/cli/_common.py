@@ -118,3 +118,42 @@ def effort_of(args):
                          "use e.g. --precision 0.005 (0.5 %)")
     return effort("full" if args.full else "quick", n_symbols=args.symbols, n_runs=args.runs,
                   precision=args.precision, max_rounds=None if args.precision is None else 8)
+
+
+#: command-line option -> (scenario section, field) it overrides
+OVERRIDES = {"--budget": ("signalling", "budget"), "--particles": ("channel", "particles"),
+             "--seed": ("channel", "seed")}
+
+
+def apply_overrides(scenario, args):
+    """The scenario with the command-line overrides of :data:`OVERRIDES` present in ``args`` applied and validated
+    before any computation; a bad value is reported under the option's name (``--budget``), not the scenario
+    field's."""
+    from capacity.errors import InputError
+    from capacity.scenario.validate import validate_scenario
+
+    for option, (section, field) in OVERRIDES.items():
+        value = getattr(args, option[2:].replace("-", "_"), None)
+        if value is None:
+            continue
+        changed = (scenario.with_signalling if section == "signalling" else scenario.with_channel)(**{field: value})
+        try:
+            validate_scenario(changed)
+        except InputError as exc:
+            if exc.field == f"{section}.{field}":
+                raise InputError(option, value, exc.problem, exc.fix.replace(f"{section}.{field}", option)) from None
+            raise
+        scenario = changed
+    return scenario
+
+
+PLOT_FORMATS = (".png", ".pdf", ".svg")
+
+
+def check_plot_path(path: str) -> None:
+    """Refuse a plot file name with an unknown extension before any computation (named error, exit 2)."""
+    from capacity.errors import InputError
+
+    if Path(path).suffix.lower() not in PLOT_FORMATS:
+        raise InputError("--plot", path, f"unknown plot format {Path(path).suffix or '(none)'}",
+                         f"end the file name with one of {', '.join(PLOT_FORMATS)}")

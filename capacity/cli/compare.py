@@ -2,11 +2,12 @@
 
 from __future__ import annotations
 
+import sys
 from pathlib import Path
 
 import numpy as np
 
-from capacity.cli._common import SAFETY, add_scenario_argument, dump_json, fmt, load
+from capacity.cli._common import SAFETY, add_scenario_argument, apply_overrides, check_plot_path, dump_json, fmt, load
 from capacity.compare import SCHEMES
 from capacity.errors import InputError
 
@@ -71,7 +72,6 @@ def format_table(scenario, records) -> str:
             lo, hi = d["ser_interval"]
             lines.append(f"  {r['scheme']:<11}{d['name']:<19}{fmt(d['symbol_error_rate']):>9}"
                          f"{'[' + fmt(lo) + ', ' + fmt(hi) + ']':>22}{fmt(d['rate']):>11}")
-    lines.append(f"  {SAFETY}")
     return "\n".join(lines)
 
 
@@ -81,7 +81,9 @@ def run(args) -> int:
     from capacity.compare import applicable_schemes, budget_sweep, compare_schemes
     from capacity.physics.response import channel_response
 
-    scenario = load(args.scenario, strict=args.strict)
+    if args.plot:
+        check_plot_path(args.plot)
+    scenario = apply_overrides(load(args.scenario, strict=args.strict), args)
     schemes = [s.strip() for s in args.schemes.split(",")] if args.schemes else None
     budgets = parse_budgets(args.budgets) if args.budgets else None
     out = Path(args.out) if args.out else None
@@ -101,10 +103,12 @@ def run(args) -> int:
 
         plot_path = args.plot or (out / "curves.png" if out else None)
         if plot_path:
-            plot_rate_curves(curves, plot_path)
-            plot_rate_curves(curves, Path(plot_path).with_name(Path(plot_path).stem + "_per_second.png"),
-                             per_second=True)
+            plot_path = Path(plot_path)
+            plot_rate_curves(curves, plot_path, title=scenario.name)
+            plot_rate_curves(curves, plot_path.with_name(plot_path.stem + "_per_second" + plot_path.suffix),
+                             per_second=True, title=scenario.name)
+            print(f"plots written to {plot_path} and its _per_second twin", file=sys.stderr)
     if out:
         dump_json(result, out / "compare.json")
-    print(dump_json(result) if args.json else format_table(scenario, records))
+    print(dump_json(result) if args.json else format_table(scenario, records) + f"\n{SAFETY}")
     return 0

@@ -57,8 +57,8 @@ def run(args) -> int:
     print(format_response(scenario, response, max_slots=6))
     dump_json(response_record(scenario, response), out / "response.json")
     names = ([e.name for e in scenario.emitters], [r.name for r in scenario.receivers])
-    plot_response(response, *names, out / "response.png")
-    record["seconds"]["response+rate"] = time.perf_counter() - t
+    plot_response(response, *names, out / "response.png", title=scenario.name)
+    record["seconds"]["response_and_rate"] = time.perf_counter() - t
 
     _step("rates of the scenario's scheme")
     print(format_rates(scenario, response, rates))
@@ -70,8 +70,8 @@ def run(args) -> int:
     budgets = np.geomspace(4, 60, 4 if args.quick else 5)
     curves = budget_sweep(scenario, response, budgets, applicable_schemes(scenario), n_symbols=n_sym // 4,
                           n_runs=4, csv_path=out / "curves.csv")
-    plot_rate_curves(curves, out / "curves.png")
-    plot_rate_curves(curves, out / "curves_per_second.png", per_second=True)
+    plot_rate_curves(curves, out / "curves.png", title=scenario.name)
+    plot_rate_curves(curves, out / "curves_per_second.png", per_second=True, title=scenario.name)
     dump_json({"schemes": records, "curves": curves}, out / "compare.json")
     record["seconds"]["compare"] = time.perf_counter() - t
 

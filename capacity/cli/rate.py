@@ -6,7 +6,16 @@ import sys
 
 import numpy as np
 
-from capacity.cli._common import SAFETY, add_effort_arguments, add_scenario_argument, dump_json, effort_of, fmt, load
+from capacity.cli._common import (
+    SAFETY,
+    add_effort_arguments,
+    add_scenario_argument,
+    apply_overrides,
+    dump_json,
+    effort_of,
+    fmt,
+    load,
+)
 
 
 def add_parser(sub) -> None:
@@ -43,7 +52,6 @@ def compute(scenario, *, model=None, budget=None, n_symbols=None, n_runs=None, s
     effort: an :class:`capacity.effort.Effort` or its name; ``n_symbols``/``n_runs`` override it.
     progress: show the stages on stderr (tqdm), when stderr is a terminal."""
     from capacity.effort import effort as make_effort
-
     from capacity.physics.response import channel_response
     from capacity.rates import link_rates
     from capacity.schemes.builders import build_alphabet
@@ -88,6 +96,8 @@ def rate_record(scenario, response, rates) -> dict:
 
 
 def format_rates(scenario, response, rates) -> str:
+    """The rate table: one row per figure, named by what it is, with its standard error (simulated figures) or
+    certified gap (Blahut-Arimoto) in its own column, and bits/s and bits/molecule with their uncertainty."""
     d = rates.to_dict()
     ts = rates.symbol_interval
     m = rates.mean_molecules
@@ -98,42 +108,48 @@ def format_rates(scenario, response, rates) -> str:
         f"budget {fmt(scenario.signalling.budget) if scenario.signalling.budget else 'none'} molecules/symbol; "
         f"mean used {fmt(m)}",
         "",
-        f"  {'quantity':<34}{'bits/symbol':>12}{'+/-':>10}{'bits/s':>10}{'bits/molecule':>15}",
+        f"  {'figure':<46}{'bits/symbol':>12}{'std err':>10}{'cert. gap':>10}{'bits/s':>10}{'+/-':>9}"
+        f"{'bits/molecule':>14}{'+/-':>9}",
     ]
 
-    def row(name, value, err, molecules):
+    def row(name, value, err, gap, molecules):
         per_mol = value / molecules if molecules > 0 else float("nan")
-        lines.append(f"  {name:<34}{fmt(value):>12}{fmt(err) if err else '':>10}{fmt(value / ts):>10}"
-                     f"{fmt(per_mol):>15}")
+        spread = err if err else gap
+        mol_err = spread / molecules if molecules > 0 and spread else None
+        lines.append(f"  {name:<46}{fmt(value):>12}{fmt(err, 2) if err else '-':>10}"
+                     f"{fmt(gap, 2) if gap else '-':>10}{fmt(value / ts):>10}{fmt(spread / ts, 2) if spread else '-':>9}"
+                     f"{fmt(per_mol):>14}{fmt(mol_err, 2) if mol_err else '-':>9}")
 
-    row("release-slot capacity (no ISI)", cap.capacity, cap.gap, cap.mean_cost)
+    row("single-slot capacity (later arrivals ignored)", cap.capacity, None, cap.gap, cap.mean_cost)
     head = rates.information_rate
-    row("rate with ISI (reported)", head.rate, head.stderr, m)
+    row("rate with ISI (reported)", head.rate, head.stderr, None, m)
     lines.append(f"    = {head.method}")
-    row("bracket: lower bound", rates.lower_bound, d["lower_bounds"][rates.lower_bound_method]["stderr"], m)
-    lines.append(f"    = {rates.lower_bound_method}")
-    row("bracket: upper bound", rates.upper_bound, d["upper_bounds"][rates.upper_bound_method]["stderr"], m)
-    lines.append(f"    = {rates.upper_bound_method}")
+    lo_name, up_name = rates.lower_bound_method, rates.upper_bound_method
+    row("lower end of the bracket", rates.lower_bound, d["lower_bounds"][lo_name]["stderr"], None, m)
+    lines.append(f"    = {lo_name}")
+    row("upper end of the bracket", rates.upper_bound, d["upper_bounds"][up_name]["stderr"], None, m)
+    lines.append(f"    = {up_name}")
     if d["bracket_relative"] is not None:
-        lines.append(f"    bracket width {100 * d['bracket_relative']:.1f}% of the lower bound")
-    lines.append("  every bound computed (bits/symbol +/- standard error):")
-    for kind in ("lower_bounds", "upper_bounds"):
+        lines.append(f"    bracket width {100 * d['bracket_relative']:.1f}% of the lower end")
+    lines.append("  every bound computed, bits/symbol (std err):")
+    for kind, label in (("lower_bounds", "lower"), ("upper_bounds", "upper")):
         for name, v in d[kind].items():
-            err = fmt(v["stderr"]) if v["stderr"] else "0"
-            lines.append(f"    {kind[:5]}  {fmt(v['rate']):>10} +/- {err:<9} {name}")
+            err = f"+/- {fmt(v['stderr'], 2)}" if v["stderr"] else "exact"
+            lines.append(f"    {label}  {fmt(v['rate']):>8} {err:<13} {name}")
     lines.append("")
+    lines.append("  single-slot capacity: Blahut-Arimoto on the release slot alone, later arrivals not counted; it is "
+                 "not a ceiling (the rate with ISI exceeds it when most molecules arrive after the release slot)")
     uc = rates.unit_cost or {}
     if uc.get("bits_per_molecule") is not None:
-        lines.append(f"  capacity per unit cost (ISI-free, budget -> 0): {fmt(uc['bits_per_molecule'])} bits/molecule "
-                     f"(best symbol {uc['symbol']}; Verdu 1990)")
-    lines.append(f"  ISI-free capacity: certified gap {cap.gap:.1e} bits; {cap.message}")
+        lines.append(f"  single-slot capacity per unit cost (budget -> 0): {fmt(uc['bits_per_molecule'])} "
+                     f"bits/molecule (best symbol {uc['symbol']}; Verdu 1990)")
+    lines.append(f"  single-slot capacity: {cap.message}")
     lines.append(f"  rate with ISI: {rates.information_rate.method}; {rates.information_rate.message}")
     law = np.asarray(rates.iid_input)
     used = [f"{lab} ({p:.3f})" for lab, p in zip(rates.alphabet.labels, law, strict=True) if p > 1e-4]
     lines.append(f"  input law ({rates.law_choice}): " + ", ".join(used))
     for note in tuple(response.notes) + tuple(rates.notes):
         lines.append(f"  note: {note}")
-    lines.append(f"  {SAFETY}")
     return "\n".join(lines)
 
 
@@ -171,9 +187,7 @@ def check_markov(scenario) -> None:
 
 
 def run(args) -> int:
-    scenario = load(args.scenario, strict=args.strict)
-    if args.budget is not None:
-        scenario = scenario.with_signalling(budget=args.budget)
+    scenario = apply_overrides(load(args.scenario, strict=args.strict), args)
     if args.markov:
         check_markov(scenario)
     effort = effort_of(args)
@@ -187,5 +201,5 @@ def run(args) -> int:
         m = record["markov_input"]
         text += (f"\n  optimised Markov input: {fmt(m['rate'])} +/- {fmt(m['stderr'])} bits/symbol "
                  f"({fmt(m['bits_per_second'])} bits/s)")
-    print(dump_json(record) if args.json else text)
+    print(dump_json(record) if args.json else f"{text}\n{SAFETY}")
     return 0

@@ -2,9 +2,12 @@
 
 from __future__ import annotations
 
+import sys
+
 import numpy as np
 
-from capacity.cli._common import add_scenario_argument, dump_json, fmt, load
+from capacity.cli._common import SAFETY, add_scenario_argument, apply_overrides, check_plot_path, dump_json, load
+from capacity.errors import InputError
 
 MODELS = ("lone", "shadowed", "particles")
 
@@ -24,7 +27,9 @@ def add_parser(sub) -> None:
     p.add_argument("--particles", type=int, metavar="N", help="molecules simulated per emitter (particle model)")
     p.add_argument("--seed", type=int, metavar="S", help="random seed (particle model)")
     p.add_argument("--json", action="store_true", help="print JSON instead of tables")
-    p.add_argument("--plot", metavar="FILE", help="write a PNG of the responses")
+    p.add_argument("--plot", metavar="FILE", help="write a plot of the responses (.png, .pdf or .svg)")
+    p.add_argument("--log", action="store_true", help="logarithmic probability axis in the plot (shows cross-talk)")
+    p.add_argument("--slots", type=int, metavar="N", help="show only the first N slots in the table (default all)")
     p.set_defaults(func=run)
 
 
@@ -44,29 +49,46 @@ def response_record(scenario, response) -> dict:
     }
 
 
-def format_response(scenario, response, max_slots: int = 12) -> str:
+def _cell(x: float) -> str:
+    """One number format for every cell: 4 significant digits in scientific notation."""
+    return f"{x:.3e}"
+
+
+def format_response(scenario, response, max_slots: int | None = None) -> str:
+    """Slots (rows, with the slot's start time in ms) x emitter -> receiver pairs (columns), every slot unless
+    ``max_slots`` is given (then "... N more slots" with the mass they hold), then the tail beyond the last kept
+    slot, the total and the peak slot per pair. Particle responses add a row of largest standard errors."""
     hits = np.asarray(response.hits)
     se = None if response.stderr is None else np.asarray(response.stderr)
-    n_slots = hits.shape[-1]
-    shown = min(n_slots, max_slots)
-    ts_ms = float(response.slot_edges[1]) * 1e3
-    lines = [f"{scenario.name}: {response.model} model, slot {ts_ms:g} ms, {n_slots} slots kept (lag 0..{n_slots-1})"]
-    for i, e in enumerate(scenario.emitters):
-        for j, r in enumerate(scenario.receivers):
-            h = hits[i, j]
-            lines.append(f"\n  {e.name} -> {r.name} ({r.kind})")
-            lines.append("    slot   hit prob" + ("     std err" if se is not None else ""))
-            for lag in range(shown):
-                row = f"    {lag:4d}   {fmt(h[lag]):>9}"
-                if se is not None:
-                    row += f"   {fmt(se[i, j, lag]):>9}"
-                lines.append(row)
-            if shown < n_slots:
-                lines.append(f"    ... {n_slots - shown} more slots (use --json for all)")
-            lines.append(
-                f"    total {fmt(h.sum())}, tail after slot {n_slots-1}: {fmt(float(response.tail[i, j]))}, "
-                f"peak slot {int(np.argmax(h))}"
-            )
+    n_e, n_r, n_slots = hits.shape
+    shown = n_slots if max_slots is None else min(n_slots, max_slots)
+    starts_ms = np.asarray(response.slot_edges)[:-1] * 1e3
+    ts_ms = float(response.slot_edges[1] - response.slot_edges[0]) * 1e3
+    pairs = [(i, j) for i in range(n_e) for j in range(n_r)]
+    head = [f"{scenario.emitters[i].name}->{scenario.receivers[j].name}" for i, j in pairs]
+    width = max(11, *(len(h) + 2 for h in head))
+    lines = [f"{scenario.name}: {response.model} model, slot {ts_ms:g} ms, {n_slots} slots kept "
+             f"(lag 0..{n_slots - 1}); hit probability per molecule released at time 0",
+             "  receivers: " + ", ".join(f"{r.name} ({r.kind})" for r in scenario.receivers),
+             "",
+             f"  {'slot':>5} {'start ms':>10}" + "".join(f"{h:>{width}}" for h in head)]
+    for lag in range(shown):
+        lines.append(f"  {lag:>5} {starts_ms[lag]:>10.4g}" + "".join(f"{_cell(hits[i, j, lag]):>{width}}"
+                                                                 for i, j in pairs))
+    if shown < n_slots:
+        rest = hits[:, :, shown:].sum(axis=-1)
+        label = f"+{n_slots - shown} slots"
+        lines.append(f"  {label:>16}" + "".join(f"{_cell(rest[i, j]):>{width}}" for i, j in pairs))
+    rows = [("tail", np.asarray(response.tail)), ("total", hits.sum(axis=-1) + np.asarray(response.tail))]
+    for name, values in rows:
+        lines.append(f"  {name:>16}" + "".join(f"{_cell(values[i, j]):>{width}}" for i, j in pairs))
+    lines.append(f"  {'peak slot':>16}" + "".join(f"{int(np.argmax(hits[i, j])):>{width}}" for i, j in pairs))
+    if se is not None:
+        lines.append(f"  {'largest std err':>16}" + "".join(f"{_cell(se[i, j].max()):>{width}}" for i, j in pairs))
+    if shown < n_slots:
+        lines.append(f"  +{n_slots - shown} slots: the mass of the slots not shown (--slots; --json for all)")
+    lines.append("  tail: mass counted after the last kept slot; total: slots + tail (for absorbing receivers the "
+                 "eventual capture)")
     for note in response.notes:
         lines.append(f"  note: {note}")
     return "\n".join(lines)
@@ -75,13 +97,19 @@ def format_response(scenario, response, max_slots: int = 12) -> str:
 def run(args) -> int:
     from capacity.physics.response import channel_response
 
-    scenario = load(args.scenario, strict=args.strict)
+    if args.slots is not None and args.slots < 1:
+        raise InputError("--slots", args.slots, "must be at least 1", "give a number of slots such as 12")
+    if args.plot:
+        check_plot_path(args.plot)
+    scenario = apply_overrides(load(args.scenario, strict=args.strict), args)
     response = channel_response(scenario, args.model, particles=args.particles, seed=args.seed,
                                 progress=not args.json)
     if args.plot:
         from capacity.report.plots import plot_response
 
-        plot_response(response, [e.name for e in scenario.emitters], [r.name for r in scenario.receivers],
-                      args.plot)
-    print(dump_json(response_record(scenario, response)) if args.json else format_response(scenario, response))
+        where = plot_response(response, [e.name for e in scenario.emitters], [r.name for r in scenario.receivers],
+                              args.plot, title=scenario.name, log=args.log)
+        print(f"plot written to {where}", file=sys.stderr)
+    print(dump_json(response_record(scenario, response)) if args.json
+          else f"{format_response(scenario, response, args.slots)}\n{SAFETY}")
     return 0
