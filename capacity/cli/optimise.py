@@ -103,7 +103,6 @@ def format_result(result) -> str:
                      f"{unit}")
     for note in result.notes:
         lines.append(f"  note: {note}")
-    lines.append(f"  {SAFETY}")
     return "\n".join(lines)
 
 
@@ -167,5 +166,5 @@ def run(args) -> int:
         (out / "optimised.toml").write_text(scenario_toml(result.scenario, comments))
         dump_json(record, out / "optimise.json")
         _plots(result, out)
-    print(dump_json(record) if args.json else format_result(result))
+    print(dump_json(record) if args.json else format_result(result) + f"\n{SAFETY}")
     return 0
