@@ -22,6 +22,14 @@ on them exactly. One iteration advances every molecule of the buffer by one step
   is gone. Absorption in that last step counts (it happened before death). This is exact, not ``O(dt)``.
 * **Passive spheres** do not interact; a molecule whose step ends on a sampling instant of passive sphere ``j``
   adds one count to ``(j, slot)`` if it is inside.
+* **Reflecting walls** (``_reflect``). Absorption is tested on the unfolded step (free Gaussian end point), against
+  the spheres AND their mirror images across the walls (passed in as extra absorbing spheres by the caller), then
+  the end point is folded back into the fluid (``z -> lower + |z - lower|``; in a channel the periodic fold).
+  The folded free step is exactly the reflected Brownian step, and the unfolded path touches an image iff the
+  reflected path touches the sphere, so one wall is exact; in a channel, images beyond two bounces are not tested
+  and the step rule's distance is capped at the width.
+* **Release pulses.** A molecule released at ``u * pulse`` ticks starts at the whole tick below and its first
+  step is shorter by the fraction (``head``); its lifetime counts from the release.
 * **Finish.** Absorbed, dead, or alive at the horizon (then its lone eventual-capture probabilities are added to
   the tail accumulators and, for the first ``store`` molecules, its position is stored). Freed buffer places
   take the next molecules.

@@ -38,7 +38,7 @@ from capacity import _jax  # noqa: F401  (float64)
 from capacity.physics import lone as _lone
 from capacity.physics._laplace import solve_transforms, talbot_nodes
 
-__all__ = ["absorbing_cdf_integral", "lone_pulse_hits", "shadowed_pulse_hits"]
+__all__ = ["absorbing_cdf_integral", "laplace_hits", "lone_pulse_hits", "shadowed_pulse_hits"]
 
 _SQRT_PI = math.sqrt(math.pi)
 #: below this w = k t, dbeta/dw uses its Taylor series (the direct form loses ~1e-16/w to cancellation)
@@ -169,24 +169,45 @@ def lone_pulse_hits(emitters, centres, radii, passive, sample_offsets, pulses, d
 
 
 # ----------------------------------------------------------------------------------- shadowed
-def _cdf_integral_laplace(times, source, centres, radii, diffusion, degradation, terms, quad):
-    """``G_j(t)`` (R,) for each time (T,) > 0 by Talbot inversion of ``P~_j(p) / p^2``."""
+#: bytes of surface-quadrature arrays allowed per chunk of slot edges in :func:`laplace_hits`
+CHUNK_BYTES = 2.5e8
+
+
+def _laplace_values(times, source, centres, radii, diffusion, degradation, terms, quad, power):
+    """``Re sum gamma P~_j(p) / p^power`` (R,) at each time (T,) > 0: the CDF (power 1) or its integral G
+    (power 2) of every sphere, by the fixed Talbot contour."""
     points, gamma = talbot_nodes(times, terms)
     p = points.reshape(-1)
     q = jnp.sqrt((p + degradation.astype(jnp.complex128)) / diffusion.astype(jnp.complex128))
     transforms = solve_transforms(q, source, centres, radii, quad)
-    terms_ = (transforms / (p * p)[:, None]).reshape(times.shape[0], terms, -1)
+    terms_ = (transforms / (p**power)[:, None]).reshape(times.shape[0], terms, -1)
     return jnp.real(jnp.einsum("lm,lmj->lj", gamma, terms_))
 
 
-def _one_emitter_pulse(source, pulse, centres, radii, diffusion, degradation, symbol_interval, memory, terms, quad):
+def _chunked(times, chunk, fn):
+    """``fn`` on (chunk,) blocks of ``times`` with lax.map (bounded memory), results (T, R)."""
+    n = times.shape[0]
+    blocks = -(-n // chunk)
+    padded = jnp.concatenate([times, jnp.broadcast_to(times[-1:], (blocks * chunk - n,))])
+    out = jax.lax.map(fn, padded.reshape(blocks, chunk))
+    return out.reshape(blocks * chunk, -1)[:n]
+
+
+def _one_emitter_laplace(source, pulse, centres, radii, diffusion, degradation, symbol_interval, memory, terms, quad,
+                         spread, chunk):
     edges = symbol_interval * jnp.arange(1, memory + 2, dtype=jnp.float64)  # (L+1,)
-    before = edges - pulse
-    ok = before > 0.0
-    times = jnp.concatenate([edges, jnp.where(ok, before, symbol_interval)])
-    g = _cdf_integral_laplace(times, source, centres, radii, diffusion, degradation, terms, quad)
-    g_now, g_before = g[: memory + 1], jnp.where(ok[:, None], g[memory + 1:], 0.0)
-    cdf = (g_now - g_before) / pulse  # (L+1, R)
+
+    def values(power):
+        return lambda tc: _laplace_values(tc, source, centres, radii, diffusion, degradation, terms, quad, power)
+
+    if spread:
+        before = edges - pulse
+        ok = before > 0.0
+        g_now = _chunked(edges, chunk, values(2))
+        g_before = jnp.where(ok[:, None], _chunked(jnp.where(ok, before, symbol_interval), chunk, values(2)), 0.0)
+        cdf = (g_now - g_before) / pulse  # (L+1, R)
+    else:
+        cdf = _chunked(edges, chunk, values(1))
     hits = jnp.diff(jnp.concatenate([jnp.zeros((1, cdf.shape[1])), cdf], axis=0), axis=0).T
     floor = 1e-12 / jnp.max(radii)
     k_pos = degradation > 0.0
@@ -195,18 +216,22 @@ def _one_emitter_pulse(source, pulse, centres, radii, diffusion, degradation, sy
     return hits, eventual - cdf[-1]
 
 
-@partial(jax.jit, static_argnames=("memory", "terms", "quad"))
-def _shadowed_pulse_core(emitters, pulses, centres, radii, diffusion, degradation, symbol_interval, memory, terms,
-                         quad):
-    fn = partial(_one_emitter_pulse, memory=memory, terms=terms, quad=quad)
+@partial(jax.jit, static_argnames=("memory", "terms", "quad", "spread", "chunk"))
+def _laplace_core(emitters, pulses, centres, radii, diffusion, degradation, symbol_interval, memory, terms, quad,
+                  spread, chunk):
+    fn = partial(_one_emitter_laplace, memory=memory, terms=terms, quad=quad, spread=spread, chunk=chunk)
     return jax.vmap(lambda e, tp: fn(e, tp, centres, radii, diffusion, degradation, symbol_interval))(emitters,
                                                                                                      pulses)
 
 
-def shadowed_pulse_hits(emitters, centres, radii, diffusion, degradation, symbol_interval, memory: int, pulses,
-                        *, terms: int | None = None):
-    """:func:`capacity.physics.shadowed.shadowed_hits` for releases spread over ``pulses`` (E,) seconds, each
-    > 0. Same arguments, shapes and checks; returns ``(hits (E, R, L+1), tail (E, R))``."""
+def laplace_hits(emitters, centres, radii, diffusion, degradation, symbol_interval, memory: int, pulses=None, *,
+                 terms: int | None = None):
+    """The shadowed renewal model (:func:`capacity.physics.shadowed.shadowed_hits`: same arguments, shapes, checks
+    and result) evaluated in chunks of slot edges, so that many spheres (image layouts) and long memories fit in
+    memory, with optional release ``pulses`` (E,) s: all > 0 (the window-averaged response), or None (impulses).
+
+    Returns ``(hits (E, R, L+1), tail (E, R))``.
+    """
     from capacity.physics import shadowed as _sh
 
     terms = _sh.DEFAULT_TERMS if terms is None else terms
@@ -214,7 +239,19 @@ def shadowed_pulse_hits(emitters, centres, radii, diffusion, degradation, symbol
     centres = jnp.asarray(centres, dtype=jnp.float64)
     radii = jnp.asarray(radii, dtype=jnp.float64)
     _sh._check_inputs(emitters, centres, radii, diffusion, degradation, symbol_interval, memory, terms)
+    n_sph = int(centres.shape[0])
+    per_edge = 16.0 * n_sph * n_sph * _sh.N_POLAR * _sh.N_AZIMUTH * terms * 2.0  # complex128 lone kernels, x2
+    chunk = int(max(1, min(memory + 1, CHUNK_BYTES // per_edge)))
+    spread = pulses is not None
+    p = jnp.zeros(emitters.shape[0]) if pulses is None else jnp.asarray(pulses, dtype=jnp.float64)
     args = [jnp.asarray(v, dtype=jnp.float64) for v in (diffusion, degradation, symbol_interval)]
-    return _shadowed_pulse_core(emitters, jnp.asarray(pulses, dtype=jnp.float64), centres, radii, *args,
-                                memory=int(memory), terms=int(terms),
-                                quad=(_sh.N_POLAR, _sh.N_AZIMUTH, _sh.N_ORDERS))
+    return _laplace_core(emitters, p, centres, radii, *args, memory=int(memory), terms=int(terms),
+                         quad=(_sh.N_POLAR, _sh.N_AZIMUTH, _sh.N_ORDERS), spread=spread, chunk=chunk)
+
+
+def shadowed_pulse_hits(emitters, centres, radii, diffusion, degradation, symbol_interval, memory: int, pulses,
+                        *, terms: int | None = None):
+    """:func:`capacity.physics.shadowed.shadowed_hits` for releases spread over ``pulses`` (E,) seconds, each
+    > 0. Same arguments, shapes and checks; returns ``(hits (E, R, L+1), tail (E, R))``."""
+    return laplace_hits(emitters, centres, radii, diffusion, degradation, symbol_interval, memory, pulses,
+                        terms=terms)

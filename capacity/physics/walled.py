@@ -15,7 +15,7 @@ from capacity.physics import images as _img
 #: largest image depth of the lone model in a channel (2 * depth + 1 copies of each receiver)
 LONE_MAX_DEPTH = 400
 #: largest number of absorbing spheres (receivers and their images) handed to the shadowed model in a channel
-SHADOWED_MAX_SPHERES = 48
+SHADOWED_MAX_SPHERES = 24
 
 
 def _depth(lay, memory: int, max_depth: int):
@@ -76,8 +76,7 @@ def shadowed_depth(lay, memory: int, n_absorbing: int) -> int:
 def shadowed_arrays(lay, absorbing, memory: int):
     """Shadowed hits (E, A, L+1) and tails (E, A) of the absorbing receivers ``absorbing`` (indices), with walls
     and pulses."""
-    from capacity.physics.pulses import shadowed_pulse_hits
-    from capacity.physics.shadowed import shadowed_hits
+    from capacity.physics.pulses import laplace_hits
 
     centres, radii, copies = lay.centres[absorbing], lay.radii[absorbing], 1
     if lay.walls is not None:
@@ -87,10 +86,10 @@ def shadowed_arrays(lay, absorbing, memory: int):
     common = (lay.diffusion, lay.degradation, lay.symbol_interval)
 
     def impulse(e):
-        return shadowed_hits(e, centres, radii, *common, memory)
+        return laplace_hits(e, centres, radii, *common, memory)
 
     def pulsed(e, p):
-        return shadowed_pulse_hits(e, centres, radii, *common, memory, p)
+        return laplace_hits(e, centres, radii, *common, memory, p)
 
     hits, tail = _by_pulse(lay, impulse, pulsed)
     return _img.fold(hits, copies), _img.fold(tail, copies)
