@@ -123,7 +123,12 @@ def auto_memory(lay: Layout, tolerance: float):
 
     Returns ``(L, hits, tail)`` with the lone hits (E, R, MEMORY_CAP+1) and tail (E, R) it was decided from.
     """
-    hits, tail = _lone_arrays(lay, MEMORY_CAP)
+    from capacity.physics.transport import growing_lone, has_transport
+
+    if has_transport(lay):  # the flow series costs per lag: L doubles until the later slots are below tolerance
+        hits, tail = growing_lone(lay, tolerance, MEMORY_CAP, _lone_arrays)
+    else:
+        hits, tail = _lone_arrays(lay, MEMORY_CAP)
     peak = hits.max(axis=-1, keepdims=True)
     above = hits > tolerance * peak
     lags = np.arange(hits.shape[-1])

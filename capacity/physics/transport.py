@@ -172,3 +172,17 @@ def design_hits(spec: Transport, emitters, centres, radii, passive, offsets, dif
                                diffusion, degradation, symbol_interval, memory)
         hits, tail = hits.at[:, reactive].set(rh), tail.at[:, reactive].set(rt)
     return hits, tail
+
+
+def growing_lone(lay, tolerance: float, cap: int, lone, start: int = 32):
+    """Lone ``(hits, tail)`` at the smallest L in ``start, 2 start, ...`` (at most ``cap``) whose last slot above
+    ``tolerance`` x the pair's peak lies in the first 3/4 of the slots (the responses decay after their peak), so
+    that ``memory = "auto"`` does not evaluate ``cap`` lags of the flow series. ``lone(lay, L)`` computes them."""
+    lags = min(start, cap)
+    while True:
+        hits, tail = lone(lay, lags)
+        above = hits > tolerance * hits.max(axis=-1, keepdims=True)
+        last = int(np.where(above, np.arange(hits.shape[-1]), 0).max())
+        if last < 0.75 * lags or lags >= cap:
+            return hits, tail
+        lags = min(2 * lags, cap)

@@ -71,7 +71,7 @@ _SIGNALLING = ("scheme", "levels", "peak", "budget", "emitter", "silent", "ampli
 
 
 #: built-in scenarios, by the name that stands for them wherever a scenario file is asked for
-BUILTIN = {"demo": "demo.toml"}
+BUILTIN = {"demo": "demo.toml", "channel_flow": "channel_flow.toml"}
 
 
 def builtin_path(name: str):
