@@ -5,13 +5,13 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from test_rates import _ook, _response, _scenario
 from test_window import HITS_A, _iid_bracket
 
 from capacity.effort import EFFORTS, batch_seed, effort, pool, relative_se, states_for_budget
 from capacity.errors import InputError
 from capacity.information.result import RateResult
 from capacity.rates import link_rates
-from test_rates import _ook, _response, _scenario
 
 
 def test_pool_is_the_mean_with_the_standard_error_of_a_mean():

@@ -24,12 +24,17 @@ def run(args) -> int:
     from capacity.scenario.summary import format_summary, summarise
 
     scenario = load(args.scenario, strict=args.strict, announce=False)
+    from capacity.scenario.echo import LEGEND, format_parameters, parameters
+
     summary = summarise(scenario)
     summary["response_model_notes"] = model_notes(scenario)
+    summary["parameters"] = parameters(scenario)
     if args.json:
         print(dump_json(summary))
     else:
         print(format_summary(summary))
+        print(f"\n{LEGEND}\n\nparameters as read:")
+        print("\n".join(format_parameters(scenario)))
         for note in summary["response_model_notes"]:
             print(f"model note: {note}")
     return 0
