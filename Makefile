@@ -30,6 +30,7 @@ studies: $(STAMP)
 	$(BIN)/python studies/validate_responses.py
 	$(BIN)/python studies/best_symbol_interval.py
 	$(BIN)/python studies/schemes_vs_budget.py
+	$(BIN)/python studies/layout_sweep.py
 
 lint: $(STAMP)
 	$(BIN)/ruff check .

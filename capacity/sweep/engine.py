@@ -72,7 +72,7 @@ def open_cluster(workers: int | None = None, scheduler: str | None = None):
         raise InputError("--workers", workers, "must be >= 0", "give the number of worker processes (0 = in "
                          "this process)")
     cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=True, dashboard_address=None,
-                           silence_logs=logging.ERROR, env=dict(WORKER_ENV))
+                           silence_logs=logging.CRITICAL, env=dict(WORKER_ENV))
     client = Client(cluster, set_as_default=False)
     try:
         yield client

@@ -21,11 +21,13 @@ import traceback
 #: information outputs in bits per symbol (units of the others are in ``UNITS``)
 _RATE_OUTPUTS = ("information_rate", "stderr", "lower_bound", "upper_bound", "bits_per_second",
                  "lower_bits_per_second", "upper_bits_per_second", "bits_per_molecule", "isi_free_capacity",
-                 "mean_molecules", "memory", "model", "rate_method")
+                 "mean_molecules", "memory", "model", "rate_method", "input_law", "lower_bound_method",
+                 "upper_bound_method", "bracket_relative", "flag")
 UNITS = {"information_rate": "bits/symbol", "stderr": "bits/symbol", "lower_bound": "bits/symbol",
          "upper_bound": "bits/symbol", "isi_free_capacity": "bits/symbol", "bits_per_second": "bits/s",
          "lower_bits_per_second": "bits/s", "upper_bits_per_second": "bits/s", "bits_per_molecule": "bits/molecule",
-         "mean_molecules": "molecules/symbol", "memory": "lags", "seconds": "s"}
+         "mean_molecules": "molecules/symbol", "memory": "lags", "seconds": "s", "cpu_seconds": "s",
+         "bracket_relative": "1"}
 
 
 def unit_of(output: str) -> str:
@@ -76,9 +78,18 @@ class RateMeasure:
 
 
 def rate_outputs(rates, response) -> dict:
+    """The rate measure's columns from a :class:`capacity.LinkRates` and its response (``flag``: why the bracket
+    misses its target, as in ``capacity compare``'s CSV)."""
+    from capacity.compare import bracket_flag
+
     ts = rates.symbol_interval
     r = rates.information_rate
-    return {"information_rate": float(r.rate), "stderr": float(r.stderr), "lower_bound": rates.lower_bound,
+    d = rates.to_dict()
+    rel = d["bracket_relative"]
+    return {"input_law": rates.law_choice, "lower_bound_method": rates.lower_bound_method,
+            "upper_bound_method": rates.upper_bound_method,
+            "bracket_relative": float("nan") if rel is None else float(rel), "flag": bracket_flag(d),
+            "information_rate": float(r.rate), "stderr": float(r.stderr), "lower_bound": rates.lower_bound,
             "upper_bound": rates.upper_bound, "bits_per_second": float(r.rate) / ts,
             "lower_bits_per_second": rates.lower_bound / ts, "upper_bits_per_second": rates.upper_bound / ts,
             "bits_per_molecule": rates.per_molecule(r.rate), "isi_free_capacity": float(rates.isi_free.capacity),
@@ -197,10 +208,11 @@ def _configure(cache_dir: str | None) -> None:
 
 
 def evaluate(scenario, measure: str, settings: dict, seed: int, cache_dir: str | None = None) -> dict:
-    """Run one point; returns {"ok": True, "outputs": {...}, "seconds"} or {"ok": False, "error": text, ...}.
+    """Run one point; returns {"ok": True, "outputs": {...}, "seconds", "cpu_seconds"} (wall and CPU time of
+    this process: far less CPU than wall means the core was shared) or {"ok": False, "error": text, ...}.
 
     Never raises (a worker's exception would otherwise only be seen as a failed future without context)."""
-    started = time.perf_counter()
+    started, cpu = time.perf_counter(), time.process_time()
     try:
         _configure(cache_dir)
         outputs = MEASURES[measure](scenario, settings, seed)
@@ -210,4 +222,5 @@ def evaluate(scenario, measure: str, settings: dict, seed: int, cache_dir: str |
         text = str(exc) if isinstance(exc, InputError) else (
             f"{type(exc).__name__}: {exc} | " + traceback.format_exc(limit=3).replace("\n", " ").strip())
         return {"ok": False, "error": text, "seconds": time.perf_counter() - started}
-    return {"ok": True, "outputs": outputs, "seconds": time.perf_counter() - started}
+    return {"ok": True, "outputs": outputs, "seconds": time.perf_counter() - started,
+            "cpu_seconds": time.process_time() - cpu}

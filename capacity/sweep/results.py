@@ -45,7 +45,7 @@ def build_dataset(spec, points, rows: dict, outputs: list[str]):
         coords[ax.label] = (ax.label, np.asarray(values, dtype=float if ax.numeric else str),
                             {"field": ax.field.path, "units": UNITS.get(ax.field.kind, ""), "spacing": ax.spacing})
     data_vars = {}
-    for name in [*outputs, "seconds", "seed"]:
+    for name in [*outputs, "seconds", "cpu_seconds", "seed"]:
         cells = [rows.get(p.point_id, {}).get(name, "") for p in points]
         numeric = all(_is_number(c) or c in ("", "nan") for c in cells)
         if numeric:
@@ -96,6 +96,7 @@ def record(spec, points, rows: dict, *, computed: int, skipped: int, failures: l
                           "status": "done" if row else "failed",
                           "seconds": row.get("seconds") if row else None})
     seconds = [r["seconds"] for r in per_point if _is_number(r["seconds"])]
+    cpu = [rows[p.point_id]["cpu_seconds"] for p in points if _is_number(rows.get(p.point_id, {}).get("cpu_seconds"))]
     return {
         "written": datetime.datetime.now(datetime.timezone.utc).isoformat(timespec="seconds"),
         "versions": versions(),
@@ -110,5 +111,6 @@ def record(spec, points, rows: dict, *, computed: int, skipped: int, failures: l
         "points_total": len(points), "points_computed": computed, "points_skipped": skipped,
         "points_failed": len(failures), "failed": failures, "best": best,
         "wall_seconds": round(wall, 3), "point_seconds_total": round(float(sum(seconds)), 3),
+        "point_cpu_seconds_total": round(float(sum(cpu)), 3),
         "cluster": cluster, "files": files, "points": per_point,
     }

@@ -77,7 +77,8 @@ def run_sweep(spec, out, *, workers: int | None = None, scheduler: str | None = 
                 def on_done(p, result):
                     coords = {ax.label: ax.coordinate(v) for ax, v in zip(spec.axes, p.values, strict=True)}
                     if result["ok"]:
-                        store.add_point(p.point_id, coords, result["outputs"], p.seed, result["seconds"])
+                        store.add_point(p.point_id, coords, result["outputs"], p.seed, result["seconds"],
+                                        result["cpu_seconds"])
                     else:
                         store.add_failure(p.point_id, coords, result["error"], result["seconds"])
                         failures.append({"point_id": p.point_id, "values": coords, "error": result["error"]})

@@ -1,9 +1,10 @@
 """``points.csv``: one row per finished point, appended and forced to disk as each point finishes.
 
-Columns: ``point_id``, the varied fields (SI numbers, or text), every output of the measure, ``seed`` and
-``seconds``. Reading tolerates a last line cut short by a kill (it is dropped, and cut off before the next
-append), so a killed sweep loses only the points that were running. ``failures.csv`` logs failed attempts the
-same way (``point_id``, the varied fields, ``error``, ``seconds``); a failed point is tried again on the next run.
+Columns: ``point_id``, the varied fields (SI numbers, or text), every output of the measure, ``seed``,
+``seconds`` and ``cpu_seconds`` (wall and CPU time of the point). Reading tolerates a last line cut short by a
+kill (it is dropped, and cut off before the next append), so a killed sweep loses only the points that were
+running. ``failures.csv`` logs failed attempts the same way (``point_id``, the varied fields, ``error``,
+``seconds``); a failed point is tried again on the next run.
 """
 
 from __future__ import annotations
@@ -94,7 +95,8 @@ class Store:
         self.folder = Path(folder)
         self.labels = list(labels)
         self.outputs = list(outputs)
-        self.points = RowFile(self.folder / POINTS, ["point_id", *labels, *outputs, "seed", "seconds"])
+        self.points = RowFile(self.folder / POINTS, ["point_id", *labels, *outputs, "seed", "seconds",
+                                                            "cpu_seconds"])
         self.failures = RowFile(self.folder / FAILURES, ["point_id", *labels, "error", "seconds"])
 
     def finished(self) -> dict[str, dict]:
@@ -102,8 +104,10 @@ class Store:
         return {r["point_id"]: {k: (v if k == "point_id" else parse_cell(v)) for k, v in r.items()}
                 for r in self.points.rows}
 
-    def add_point(self, pid: str, coords: dict, outputs: dict, seed: int, seconds: float) -> None:
-        self.points.append({"point_id": pid, **coords, **outputs, "seed": seed, "seconds": round(seconds, 4)})
+    def add_point(self, pid: str, coords: dict, outputs: dict, seed: int, seconds: float,
+                  cpu_seconds: float) -> None:
+        self.points.append({"point_id": pid, **coords, **outputs, "seed": seed, "seconds": round(seconds, 4),
+                            "cpu_seconds": round(cpu_seconds, 4)})
 
     def add_failure(self, pid: str, coords: dict, error: str, seconds: float) -> None:
         self.failures.append({"point_id": pid, **coords, "error": error, "seconds": round(seconds, 4)})
