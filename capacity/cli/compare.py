@@ -46,6 +46,8 @@ def add_parser(sub) -> None:
     p.add_argument("--runs", type=int, default=4, metavar="K", help="independent runs for standard errors")
     p.add_argument("--seed", type=int, metavar="S", help="random seed (default: the scenario's)")
     p.add_argument("--model", choices=("lone", "shadowed", "particles"), help="response model override")
+    p.add_argument("--force", action="store_true",
+                   help="with --model particles: run even when a timed pilot estimates more than an hour")
     p.add_argument("--json", action="store_true", help="print JSON")
     p.add_argument("--plot", metavar="FILE", help="PNG of the rate-versus-budget curves (needs --budgets)")
     p.add_argument("--out", metavar="DIR", help="write compare.json, curves.csv and curves.png into DIR")
@@ -87,7 +89,7 @@ def run(args) -> int:
     schemes = [s.strip() for s in args.schemes.split(",")] if args.schemes else None
     budgets = parse_budgets(args.budgets) if args.budgets else None
     out = Path(args.out) if args.out else None
-    response = channel_response(scenario, args.model, seed=args.seed)
+    response = channel_response(scenario, args.model, seed=args.seed, force=args.force)
     records = compare_schemes(scenario, response, schemes, budget=args.budget, n_symbols=args.symbols,
                               n_runs=args.runs, detector_symbols=args.symbols, seed=args.seed)
     result = {"scenario": scenario.name, "model": response.model, "units": "bits",

@@ -40,13 +40,15 @@ def add_parser(sub) -> None:
     p.add_argument("--markov", action="store_true",
                    help="also optimise a Markov input law over the ISI trellis (generalised Blahut-Arimoto; only "
                         "where S^L <= 256 states)")
+    p.add_argument("--force", action="store_true",
+                   help="with --model particles: run even when a timed pilot estimates more than an hour")
     p.add_argument("--json", action="store_true", help="print JSON")
     p.add_argument("--quiet", action="store_true", help="no progress on stderr")
     p.set_defaults(func=run)
 
 
 def compute(scenario, *, model=None, budget=None, n_symbols=None, n_runs=None, seed=None, progress=False,
-            effort="full"):
+            effort="full", force=False):
     """Response, alphabet and rates of one scenario; returns (response, alphabet, LinkRates).
 
     effort: an :class:`capacity.effort.Effort` or its name; ``n_symbols``/``n_runs`` override it.
@@ -71,7 +73,7 @@ def compute(scenario, *, model=None, budget=None, n_symbols=None, n_runs=None, s
         if budget is not None:
             scenario = scenario.with_signalling(budget=budget)
         stage("channel response")
-        response = channel_response(scenario, model, seed=seed)
+        response = channel_response(scenario, model, seed=seed, force=force)
         alphabet = build_alphabet(scenario.signalling, len(scenario.emitters))
         rates = link_rates(scenario, response, alphabet, seed=seed, stage=stage,
                            effort=make_effort(effort, n_symbols=n_symbols, n_runs=n_runs))
@@ -192,7 +194,7 @@ def run(args) -> int:
         check_markov(scenario)
     effort = effort_of(args)
     response, _, rates = compute(scenario, model=args.model, seed=args.seed, effort=effort,
-                                 progress=not (args.quiet or args.json))
+                                 progress=not (args.quiet or args.json), force=args.force)
     record = rate_record(scenario, response, rates)
     text = format_rates(scenario, response, rates)
     if args.markov:

@@ -26,6 +26,8 @@ def add_parser(sub) -> None:
     p.add_argument("--model", choices=MODELS, help="response model (default: the scenario's channel.response)")
     p.add_argument("--particles", type=int, metavar="N", help="molecules simulated per emitter (particle model)")
     p.add_argument("--seed", type=int, metavar="S", help="random seed (particle model)")
+    p.add_argument("--force", action="store_true",
+                   help="start a particle run even when a timed pilot estimates it at more than an hour")
     p.add_argument("--json", action="store_true", help="print JSON instead of tables")
     p.add_argument("--plot", metavar="FILE", help="write a plot of the responses (.png, .pdf or .svg)")
     p.add_argument("--log", action="store_true", help="logarithmic probability axis in the plot (shows cross-talk)")
@@ -103,7 +105,7 @@ def run(args) -> int:
         check_plot_path(args.plot)
     scenario = apply_overrides(load(args.scenario, strict=args.strict), args)
     response = channel_response(scenario, args.model, particles=args.particles, seed=args.seed,
-                                progress=not args.json)
+                                progress=not args.json, force=args.force)
     if args.plot:
         from capacity.report.plots import plot_response
 

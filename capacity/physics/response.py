@@ -225,11 +225,16 @@ def _particles(lay: Layout, memory: int, options: dict, lone):
                          f"{PARTICLE_STEP_LIMIT:.0e}",
                          "keep fewer lags (smaller memory or larger memory_tolerance), set a longer "
                          "channel.time_step, or use the lone or shadowed model")
-    hits, tail, stderr = simulate_hits(lay.emitters, lay.centres, lay.radii, lay.passive, lay.offsets,
-                                       lay.diffusion, lay.degradation, lay.symbol_interval, memory,
-                                       particles=int(options["particles"]), seed=int(options["seed"]),
-                                       time_step=options["time_step"], progress=options["progress"],
-                                       walls=lay.walls, pulses=lay.pulses, reaction_rates=lay.rates, flow=lay.flow)
+    from capacity.physics.particle_budget import check_run_time
+
+    def run(n, progress=False):
+        return simulate_hits(lay.emitters, lay.centres, lay.radii, lay.passive, lay.offsets, lay.diffusion,
+                             lay.degradation, lay.symbol_interval, memory, particles=int(n), seed=int(options["seed"]),
+                             time_step=options["time_step"], progress=progress, walls=lay.walls, pulses=lay.pulses,
+                             reaction_rates=lay.rates, flow=lay.flow)
+
+    check_run_time(run, int(options["particles"]), force=bool(options.get("force")))
+    hits, tail, stderr = run(options["particles"], options["progress"])
     hits, tail = np.array(hits, dtype=np.float64), np.array(tail, dtype=np.float64)
     notes = [f"particles model: {int(options['particles'])} molecules per emitter, seed {int(options['seed'])}"]
     if lay.passive.any():
@@ -272,13 +277,14 @@ def broken_invariants(hits, tail, passive, *, shared: bool) -> list[str]:
 
 
 def channel_response(scenario, model=None, *, memory=None, particles=None, seed=None, time_step=None,
-                     progress=False) -> ChannelResponse:
+                     progress=False, force=False) -> ChannelResponse:
     """Hit probabilities ``p[i, j, l]`` of a scenario with the chosen response model.
 
     scenario : :class:`capacity.Scenario`. model : ``"lone"`` | ``"shadowed"`` | ``"particles"`` (default
     ``scenario.channel.response``). memory : int L >= 0 or ``"auto"`` (default ``scenario.channel.memory``).
     particles, seed, time_step (s) : particle-model settings overriding ``scenario.channel``. progress : show a
-    progress bar (particles).
+    progress bar (particles). force : start a particle run even when a timed pilot estimates it at more than an
+    hour (:mod:`capacity.physics.particle_budget`; otherwise InputError).
 
     Returns a :class:`ChannelResponse` with float64 numpy arrays: hits (E, R, L+1), tail (E, R), stderr
     (E, R, L+1) for ``particles`` else None, slot_edges ``Ts * arange(L+2)`` (s), and notes (model remarks, the
@@ -314,7 +320,7 @@ def channel_response(scenario, model=None, *, memory=None, particles=None, seed=
     options = {"particles": ch.particles if particles is None else particles,
                "seed": ch.seed if seed is None else seed,
                "time_step": ch.time_step if time_step is None else time_step,
-               "progress": progress}
+               "progress": progress, "force": force}
     hits, tail, stderr, model_notes = MODELS[name](lay, lags, options, lone)
     if lay.walls is not None:
         from capacity.physics.walled import recurrent_tail
