@@ -118,8 +118,9 @@ def format_rates(scenario, response, rates) -> str:
         per_mol = value / molecules if molecules > 0 else float("nan")
         spread = err if err else gap
         mol_err = spread / molecules if molecules > 0 and spread else None
+        per_s_err = fmt(spread / ts, 2) if spread else "-"
         lines.append(f"  {name:<46}{fmt(value):>12}{fmt(err, 2) if err else '-':>10}"
-                     f"{fmt(gap, 2) if gap else '-':>10}{fmt(value / ts):>10}{fmt(spread / ts, 2) if spread else '-':>9}"
+                     f"{fmt(gap, 2) if gap else '-':>10}{fmt(value / ts):>10}{per_s_err:>9}"
                      f"{fmt(per_mol):>14}{fmt(mol_err, 2) if mol_err else '-':>9}")
 
     row("single-slot capacity (later arrivals ignored)", cap.capacity, None, cap.gap, cap.mean_cost)
