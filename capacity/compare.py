@@ -45,7 +45,8 @@ def scheme_alphabet(scenario, scheme: str):
 
     if scheme not in SCHEMES:
         raise InputError("schemes", scheme, "unknown scheme", f"choose from {', '.join(SCHEMES)}")
-    return build_alphabet(scenario.with_signalling(scheme=scheme).signalling, len(scenario.emitters))
+    return build_alphabet(scenario.with_signalling(scheme=scheme).signalling,
+                          len(scenario.emitters)).named(e.name for e in scenario.emitters)
 
 
 def applicable_schemes(scenario, schemes=None) -> list[str]:
@@ -107,8 +108,10 @@ def evaluate_detectors(scenario, response, alphabet, rates, *, n_symbols: int, s
 
 
 def compare_schemes(scenario, response, schemes=None, *, budget=None, n_symbols=20_000, n_runs=8,
-                    detector_symbols=20_000, seed=None) -> list[dict]:
-    """One record per scheme at the same mean budget (JSON-ready, bits)."""
+                    detector_symbols=20_000, seed=None, effort=None, progress: Callable | None = None) -> list[dict]:
+    """One record per scheme at the same mean budget (JSON-ready, bits). ``effort`` (an
+    :class:`capacity.effort.Effort` or its name) replaces ``n_symbols``/``n_runs`` for the rates when given;
+    ``progress`` is called once per finished scheme."""
     from capacity.rates import link_rates
 
     seed = scenario.channel.seed if seed is None else seed
@@ -117,17 +120,19 @@ def compare_schemes(scenario, response, schemes=None, *, budget=None, n_symbols=
     for scheme in applicable_schemes(scenario, schemes):
         alphabet = scheme_alphabet(scenario, scheme)
         rates = link_rates(scenario, response, alphabet, budget=budget, n_symbols=n_symbols, n_runs=n_runs,
-                           seed=seed)
+                           seed=seed, effort=effort)
         record = _row(scheme, budget, rates)
         record["detectors"] = evaluate_detectors(scenario, response, alphabet, rates, n_symbols=detector_symbols,
                                                  seed=seed + 11)
         record["details"] = rates.to_dict()
         records.append(record)
+        if progress is not None:
+            progress()
     return records
 
 
 def budget_sweep(scenario, response, budgets, schemes=None, *, n_symbols=5_000, n_runs=4, seed=None,
-                 csv_path: str | Path | None = None, progress: Callable | None = None) -> dict:
+                 csv_path: str | Path | None = None, progress: Callable | None = None, effort=None) -> dict:
     """Rate-versus-budget curves of the best rate found at each budget, non-decreasing by construction.
 
     Budgets are taken in increasing order; the best law found so far is a candidate at every larger budget, and
@@ -157,7 +162,7 @@ def budget_sweep(scenario, response, budgets, schemes=None, *, n_symbols=5_000, 
                     continue
                 cands = None if best_law is None else {f"best law at budget {best_row['budget']:g}": best_law}
                 rates = link_rates(scenario, response, alphabet, budget=float(b), n_symbols=n_symbols,
-                                   n_runs=n_runs, seed=seed, candidate_laws=cands)
+                                   n_runs=n_runs, seed=seed, candidate_laws=cands, effort=effort)
                 row = _row(scheme, float(b), rates)
                 if best_row is not None and row["information_rate"] < best_row["information_rate"]:
                     # the law found at a smaller budget is feasible here and, on the same random numbers, gives

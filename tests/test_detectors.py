@@ -24,7 +24,7 @@ from capacity.schemes.detectors import (
     wilson_interval,
 )
 from capacity.schemes.detectors.decision_feedback import decision_feedback
-from capacity.schemes.detectors.symbol_ml import symbol_ml
+from capacity.schemes.detectors.symbol_map import symbol_map
 from capacity.schemes.detectors.viterbi import viterbi
 from capacity.schemes.detectors.zero_forcing import zero_forcing, zero_forcing_estimate
 
@@ -187,7 +187,7 @@ def test_without_isi_sequence_detectors_reduce_to_symbol_map():
     a = build_alphabet(Signalling(scheme="amplitude", levels=4, peak=900.0), 1)
     prob = make_problem(np.full((1, 1, 1), 0.01), [1.0], a, np.full(4, 0.25))
     _, y = simulate(prob, 500, rng)
-    d = symbol_ml(y, prob)
+    d = symbol_map(y, prob)
     np.testing.assert_array_equal(viterbi(y, prob), d)
     np.testing.assert_array_equal(decision_feedback(y, prob), d)
 
@@ -197,8 +197,8 @@ def test_sequence_detection_helps_under_strong_isi():
     hits = np.array([0.004, 0.004, 0.003]).reshape(1, 1, 3)
     a = _ook(1000.0)
     res = {k: detector_performance(k, hits, [1.0], a, [0.5, 0.5], n_symbols=5000, seed=4)
-           for k in ("symbol_ml", "decision_feedback", "viterbi")}
-    assert res["viterbi"].symbol_error_rate < res["symbol_ml"].symbol_error_rate
+           for k in ("symbol_map", "decision_feedback", "viterbi")}
+    assert res["viterbi"].symbol_error_rate < res["symbol_map"].symbol_error_rate
     assert res["viterbi"].ser_interval[0] < res["decision_feedback"].ser_interval[1]
 
 
@@ -219,7 +219,7 @@ def test_hard_decision_rate_below_soft_information():
     law = np.array([0.4, 0.2, 0.2, 0.2])
     hits, bg = _memoryless_hits(0.01), [1.0]
     soft = _soft_information(1.0 + 0.01 * a.symbols[:, 0], law)
-    for name in ("symbol_ml", "viterbi"):
+    for name in ("symbol_map", "viterbi"):
         r = detector_performance(name, hits, bg, a, law, n_symbols=20_000, seed=8)
         assert r.rate <= soft + 4 * r.rate_stderr
         assert r.rate > 0.5 * soft  # the decisions do carry most of it (MAP on a good channel)
@@ -253,7 +253,7 @@ def test_memoryless_map_error_rate_matches_direct_summation():
     decide = np.argmax(law[:, None] * w, axis=0)  # (Y,)
     exact = float(sum(law[s] * w[s, decide != s].sum() for s in range(4)))
     n = 20_000
-    r = detector_performance("symbol_ml", _memoryless_hits(0.006), [0.8], a, law, n_symbols=n, seed=17)
+    r = detector_performance("symbol_map", _memoryless_hits(0.006), [0.8], a, law, n_symbols=n, seed=17)
     assert abs(r.symbol_error_rate - exact) < 4 * math.sqrt(exact * (1 - exact) / n)
 
 
@@ -261,7 +261,7 @@ def test_rate_standard_error_matches_spread_over_seeds():
     # independent Monte Carlo: the delta-method standard error should match the spread of the plug-in rate over
     # independent runs (loose factor-of-two band: 12 runs give the standard deviation to about ±20 %)
     a = build_alphabet(Signalling(scheme="amplitude", levels=3, peak=1000.0), 1)
-    runs = [detector_performance("symbol_ml", _memoryless_hits(0.004), [1.0], a, np.full(3, 1 / 3),
+    runs = [detector_performance("symbol_map", _memoryless_hits(0.004), [1.0], a, np.full(3, 1 / 3),
                                  n_symbols=2000, seed=100 + k) for k in range(12)]
     spread = np.std([r.rate for r in runs], ddof=1)
     claimed = np.mean([r.rate_stderr for r in runs])
@@ -340,7 +340,7 @@ def test_detector_errors():
     with pytest.raises(InputError, match="two-symbol"):
         detector_performance("threshold", hits, [1.0], a, np.full(4, 0.25))
     with pytest.raises(InputError, match="summing to 1"):
-        detector_performance("symbol_ml", hits, [1.0], a, [0.5, 0.5, 0.5, 0.5])
+        detector_performance("symbol_map", hits, [1.0], a, [0.5, 0.5, 0.5, 0.5])
     # the full trellis is refused; viterbi() then falls back to a reduced-state trellis (tested below)
     from capacity.schemes.detectors.problem import make_problem
     from capacity.schemes.detectors.viterbi import trellis
@@ -348,7 +348,7 @@ def test_detector_errors():
     with pytest.raises(InputError, match="states"):
         trellis(make_problem(np.full((1, 1, 8), 0.001), np.array([1.0]), a, np.full(4, 0.25)))
     with pytest.raises(InputError, match="shape"):
-        detector_performance("symbol_ml", np.full((2, 1, 2), 0.01), [1.0], a, np.full(4, 0.25))
+        detector_performance("symbol_map", np.full((2, 1, 2), 0.01), [1.0], a, np.full(4, 0.25))
 
 
 def test_reduced_state_viterbi_on_a_long_memory_channel():
@@ -373,7 +373,7 @@ def test_reduced_state_viterbi_on_a_long_memory_channel():
     full_mean = 0.5 + 10.0 * lags.sum()
     assert red.offset[0] + 10.0 * lags[: kept + 1].sum() == pytest.approx(full_mean, rel=1e-12)
     vit = detector_performance("viterbi", hits, np.array([0.5]), ook, law, n_symbols=3000, seed=5)
-    sml = detector_performance("symbol_ml", hits, np.array([0.5]), ook, law, n_symbols=3000, seed=5)
+    sml = detector_performance("symbol_map", hits, np.array([0.5]), ook, law, n_symbols=3000, seed=5)
     assert "reduced-state" in vit.message
     se = np.sqrt(sml.symbol_error_rate * (1 - sml.symbol_error_rate) / 3000)
     assert vit.symbol_error_rate < sml.symbol_error_rate - 4 * se
@@ -400,10 +400,10 @@ def _expected_labels(scheme, levels, emitters):
 
 
 @pytest.mark.parametrize("scheme, levels, emitters, detector, lags", [
-    ("amplitude", 4, 1, "symbol_ml", 1),
-    ("amplitude", 8, 1, "symbol_ml", 1),
+    ("amplitude", 4, 1, "symbol_map", 1),
+    ("amplitude", 8, 1, "symbol_map", 1),
     ("amplitude", 8, 1, "viterbi", 2),
-    ("multiplex", 4, 2, "symbol_ml", 1),
+    ("multiplex", 4, 2, "symbol_map", 1),
 ])
 def test_bit_error_rate_matches_brute_force_hamming_count(scheme, levels, emitters, detector, lags):
     # brute force (definition of the bit error rate): every (sent, decided) pair of the run, from its confusion
@@ -451,5 +451,5 @@ def test_gray_bit_error_rate_matches_exact_symbol_map_expectation():
     n = 20_000
     se = math.sqrt(exact * (1 - exact) / n)
     assert natural - exact > 10 * se  # Gray labels halve the damage of neighbour slips here
-    r = detector_performance("symbol_ml", _memoryless_hits(0.01), [1.0], a, law, n_symbols=n, seed=23)
+    r = detector_performance("symbol_map", _memoryless_hits(0.01), [1.0], a, law, n_symbols=n, seed=23)
     assert abs(r.bit_error_rate - exact) < 4 * se

@@ -160,3 +160,15 @@ def test_other_bad_settings_rejected():
         build_alphabet(Signalling(scheme="multiplex", levels=8, peak=1000.0), 5)
     with pytest.raises(InputError, match="positive number of molecules"):
         build_alphabet(Signalling(scheme="spatial", peak=-1.0), 2)
+
+
+def test_labels_take_the_emitters_names():
+    # the numeric labels and the named ones describe the same release vectors, symbol for symbol
+    a = build_alphabet(Signalling(scheme="hybrid", levels=3, peak=60.0), 2)
+    named = a.named(["sender-west", "sender-east"])
+    assert named.labels[0] == a.labels[0]
+    for plain, nice, row in zip(a.labels[1:], named.labels[1:], a.symbols[1:], strict=True):
+        i = int(np.argmax(row))
+        assert nice == plain.replace(f"e{i}:", ["sender-west", "sender-east"][i] + ":")
+        assert nice.endswith(f":{int(row[i])}")
+    assert np.array_equal(named.symbols, a.symbols) and np.array_equal(named.bits, a.bits)

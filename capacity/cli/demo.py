@@ -53,7 +53,11 @@ def run(args) -> int:
     record["seconds"]["check"] = time.perf_counter() - t
 
     t = _step("channel response (shadowed model)")
-    response, _, rates = compute(scenario, n_symbols=n_sym, n_runs=4 if args.quick else 8)
+    effort = "quick" if args.quick else None  # the quick setting: short runs under a stopping rule
+    if args.quick:
+        response, _, rates = compute(scenario, effort="quick", progress=True)
+    else:
+        response, _, rates = compute(scenario, n_symbols=n_sym, n_runs=8, progress=True)
     print(format_response(scenario, response, max_slots=6))
     dump_json(response_record(scenario, response), out / "response.json")
     names = ([e.name for e in scenario.emitters], [r.name for r in scenario.receivers])
@@ -65,11 +69,12 @@ def run(args) -> int:
     dump_json(rate_record(scenario, response, rates), out / "rate.json")
 
     t = _step("signalling schemes at equal budget")
-    records = compare_schemes(scenario, response, n_symbols=n_sym // 2, n_runs=4, detector_symbols=n_sym // 2)
+    records = compare_schemes(scenario, response, n_symbols=n_sym // 2, n_runs=4, detector_symbols=n_sym // 2,
+                              effort=effort)
     print(format_table(scenario, records))
     budgets = np.geomspace(4, 60, 4 if args.quick else 5)
     curves = budget_sweep(scenario, response, budgets, applicable_schemes(scenario), n_symbols=n_sym // 4,
-                          n_runs=4, csv_path=out / "curves.csv")
+                          n_runs=4, csv_path=out / "curves.csv", effort=effort)
     plot_rate_curves(curves, out / "curves.png", title=scenario.name)
     plot_rate_curves(curves, out / "curves_per_second.png", per_second=True, title=scenario.name)
     dump_json({"schemes": records, "curves": curves}, out / "compare.json")

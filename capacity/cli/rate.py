@@ -74,7 +74,7 @@ def compute(scenario, *, model=None, budget=None, n_symbols=None, n_runs=None, s
             scenario = scenario.with_signalling(budget=budget)
         stage("channel response")
         response = channel_response(scenario, model, seed=seed, force=force)
-        alphabet = build_alphabet(scenario.signalling, len(scenario.emitters))
+        alphabet = build_alphabet(scenario.signalling, len(scenario.emitters)).named(e.name for e in scenario.emitters)
         rates = link_rates(scenario, response, alphabet, seed=seed, stage=stage,
                            effort=make_effort(effort, n_symbols=n_symbols, n_runs=n_runs))
     finally:

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import dataclasses
+import re
 from dataclasses import dataclass
 
 import numpy as np
@@ -34,3 +36,11 @@ class Alphabet:
     @property
     def emitters(self) -> int:
         return int(np.shape(self.symbols)[1])
+
+    def named(self, names) -> "Alphabet":
+        """The same alphabet with ``e<i>:`` in the labels replaced by the emitters' names (``sender-west:60``)."""
+        names = tuple(names)
+        if len(names) != self.emitters:
+            return self
+        labels = tuple(re.sub(r"\be(\d+):", lambda m: f"{names[int(m.group(1))]}:", lab) for lab in self.labels)
+        return dataclasses.replace(self, labels=labels)

@@ -5,7 +5,7 @@ Every detector is a function ``detect(counts, problem) -> indices``: counts (n, 
 known preamble), returning the decided symbol indices (n,).
 
 Public names:
-    DETECTORS                 name -> detector: zero_forcing, symbol_ml, threshold, viterbi, decision_feedback
+    DETECTORS                 name -> detector: zero_forcing, symbol_map, threshold, viterbi, decision_feedback
     detector_performance      simulate one detector -> DetectorResult (SER, BER with Wilson intervals, rate)
     DetectorResult            its result type
     CLOSED_FORMS              name -> exact error rate where one exists (threshold without ISI)

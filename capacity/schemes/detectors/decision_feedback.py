@@ -21,7 +21,7 @@ import numpy as np
 
 from capacity import _jax  # noqa: F401  (float64)
 from capacity.schemes.detectors.problem import DetectionProblem, check_counts, lag_means
-from capacity.schemes.detectors.symbol_ml import symbol_ml
+from capacity.schemes.detectors.symbol_map import symbol_map
 
 
 @jax.jit
@@ -42,10 +42,10 @@ def _dfe_core(y, recent0, direct, isi_lags, offset, log_prior):
 
 
 def decision_feedback(counts: np.ndarray, problem: DetectionProblem) -> np.ndarray:
-    """Decision-feedback decisions: counts (n, R) -> symbol indices (n,). L = 0 is plain :func:`symbol_ml`."""
+    """Decision-feedback decisions: counts (n, R) -> symbol indices (n,). L = 0 is plain :func:`symbol_map`."""
     y = check_counts(counts, problem)
     if problem.memory == 0:
-        return symbol_ml(y, problem)
+        return symbol_map(y, problem)
     lm = lag_means(problem)
     out = _dfe_core(jnp.asarray(y), jnp.asarray(problem.preamble[::-1].copy()), jnp.asarray(lm[0]),
                     jnp.asarray(lm[1:]), jnp.asarray(problem.offset), jnp.asarray(problem.log_prior))

@@ -99,7 +99,7 @@ def detector_performance(detector_name: str, hits, background, alphabet: Alphabe
                          prior: bool = True) -> DetectorResult:
     """Simulate a detector on the Poisson counting channel with ISI.
 
-    detector_name : a key of :data:`DETECTORS` (``zero_forcing``, ``symbol_ml``, ``threshold``, ``viterbi``,
+    detector_name : a key of :data:`DETECTORS` (``zero_forcing``, ``symbol_map``, ``threshold``, ``viterbi``,
         ``decision_feedback``).
     hits : (E, R, L+1) hit probabilities per molecule (ChannelResponse.hits).
     background : (R,) mean background counts per slot.

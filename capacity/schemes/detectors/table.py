@@ -3,14 +3,14 @@
 from __future__ import annotations
 
 from capacity.schemes.detectors.decision_feedback import decision_feedback
-from capacity.schemes.detectors.symbol_ml import symbol_ml
+from capacity.schemes.detectors.symbol_map import symbol_map
 from capacity.schemes.detectors.threshold import threshold
 from capacity.schemes.detectors.viterbi import viterbi
 from capacity.schemes.detectors.zero_forcing import zero_forcing
 
 DETECTORS = {
     "zero_forcing": zero_forcing,
-    "symbol_ml": symbol_ml,
+    "symbol_map": symbol_map,
     "threshold": threshold,
     "viterbi": viterbi,
     "decision_feedback": decision_feedback,

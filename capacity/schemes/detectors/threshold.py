@@ -14,7 +14,7 @@ and, when λ_lo = 0 (no background), τ = 0 if π_hi e^(−λ_hi) >= π_lo else 
 
 exact when there is no ISI (classical binary Poisson hypothesis test; e.g. Gagliardi & Karp, Optical
 Communications, 1976 [memory]; for molecular on-off keying, Jamali et al., Proc. IEEE 107(7), 2019). With ISI the
-past releases are replaced by their mean (as in :mod:`symbol_ml`), so the threshold is then a heuristic and its
+past releases are replaced by their mean (as in :mod:`symbol_map`), so the threshold is then a heuristic and its
 error rate must be simulated (:func:`detector_performance`).
 """
 
@@ -27,7 +27,7 @@ from scipy.stats import poisson
 
 from capacity.errors import InputError
 from capacity.schemes.detectors.problem import DetectionProblem, check_counts
-from capacity.schemes.detectors.symbol_ml import symbol_means
+from capacity.schemes.detectors.symbol_map import symbol_means
 
 
 def map_threshold(lam_lo: float, lam_hi: float, p_lo: float = 0.5, p_hi: float = 0.5) -> float:
@@ -70,7 +70,7 @@ def _binary_means(problem: DetectionProblem) -> tuple[np.ndarray, np.ndarray]:
         raise InputError("detector", "threshold",
                          "the threshold detector is for two-symbol (on-off keying) alphabets, "
                          f"got S = {problem.size}",
-                         "use symbol_ml, decision_feedback or viterbi for larger alphabets")
+                         "use symbol_map, decision_feedback or viterbi for larger alphabets")
     lam = symbol_means(problem).sum(axis=1)
     order = np.argsort(lam, kind="stable")
     return order, lam[order]

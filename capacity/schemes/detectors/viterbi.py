@@ -26,7 +26,7 @@ import numpy as np
 from capacity import _jax  # noqa: F401  (float64)
 from capacity.errors import InputError
 from capacity.schemes.detectors.problem import DetectionProblem, check_counts, lag_means
-from capacity.schemes.detectors.symbol_ml import symbol_ml
+from capacity.schemes.detectors.symbol_map import symbol_map
 
 MAX_STATES = 4096
 """Largest trellis (S^L states) the detector accepts."""
@@ -115,7 +115,7 @@ def kept_lags(problem: DetectionProblem) -> int:
 def viterbi(counts: np.ndarray, problem: DetectionProblem) -> np.ndarray:
     """Sequence decisions: counts (n, R) -> symbol indices (n,) maximising the joint posterior (or likelihood).
 
-    With no ISI (L = 0) the sequence detector is the symbol-by-symbol one (:func:`symbol_ml`), used directly.
+    With no ISI (L = 0) the sequence detector is the symbol-by-symbol one (:func:`symbol_map`), used directly.
     When the full trellis is larger than MAX_STATES / MAX_BRANCHES, the detector runs on a reduced trellis that
     keeps the first lags exactly and the rest as mean interference (:func:`reduced_problem`); it is then no longer
     the exact sequence detector, and ``detector_performance`` says so in its message.
@@ -125,7 +125,7 @@ def viterbi(counts: np.ndarray, problem: DetectionProblem) -> np.ndarray:
     if kept < problem.memory:
         problem = reduced_problem(problem, kept)
     if problem.memory == 0:
-        return symbol_ml(y, problem)
+        return symbol_map(y, problem)
     means, start = trellis(problem)
     start_metric = np.full(means.shape[0], -np.inf)
     start_metric[start] = 0.0

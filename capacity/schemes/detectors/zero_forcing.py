@@ -24,11 +24,11 @@ def zero_forcing_inverse(problem: DetectionProblem) -> np.ndarray:
     if n_r < n_e:
         raise InputError("detector", "zero_forcing",
                          f"zero forcing needs at least as many receivers as emitters (R = {n_r} < E = {n_e})",
-                         "use symbol_ml, decision_feedback or viterbi, or add receivers")
+                         "use symbol_map, decision_feedback or viterbi, or add receivers")
     if np.linalg.matrix_rank(p0) < n_e:
         raise InputError("detector", "zero_forcing",
                          "the direct hit matrix hits[:, :, 0] has rank below the number of emitters, so their "
-                         "releases cannot be separated linearly", "use symbol_ml or move the receivers")
+                         "releases cannot be separated linearly", "use symbol_map or move the receivers")
     return np.linalg.pinv(p0.T)
 
 

@@ -1,4 +1,4 @@
-"""Symbol-by-symbol maximum a posteriori / maximum likelihood detection, ISI treated as its mean.
+"""Symbol-by-symbol maximum a posteriori (MAP) detection, ISI treated as its mean (ML with ``prior=False``).
 
 Each slot is decided alone: ŝ_k = argmax_s [ln π_s + Σ_j (y_kj ln μ_sj − μ_sj)], with
 μ_sj = c_j + Σ_i x_s[i] hits[i, j, 0] + Σ_{l>=1} Σ_i E[x_i] hits[i, j, l] — the unknown past releases replaced by
@@ -19,8 +19,8 @@ def symbol_means(problem: DetectionProblem) -> np.ndarray:
     return problem.offset[None, :] + lag_means(problem)[0] + mean_isi(problem)[None, :]
 
 
-def symbol_ml(counts: np.ndarray, problem: DetectionProblem) -> np.ndarray:
-    """Per-slot MAP (ML with a flat prior) decisions: counts (n, R) -> symbol indices (n,)."""
+def symbol_map(counts: np.ndarray, problem: DetectionProblem) -> np.ndarray:
+    """Per-slot MAP decisions (ML when the problem's prior is flat): counts (n, R) -> symbol indices (n,)."""
     y = check_counts(counts, problem)
     scores = poisson_scores(y, symbol_means(problem)) + problem.log_prior[None, :]
     return np.argmax(scores, axis=1).astype(np.int64)
