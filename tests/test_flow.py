@@ -223,3 +223,40 @@ def test_cli_scalar_flow_exits_2(tmp_path):
                           text=True, timeout=120)
     assert proc.returncode == 2
     assert "medium.flow" in proc.stderr and "Traceback" not in proc.stderr
+
+
+def test_builtin_channel_flow_loads_with_walls_flow_and_a_reactive_bead():
+    import capacity
+
+    sc = capacity.load_scenario("channel_flow")
+    assert len(sc.walls) == 2 and sc.flow[0] > 0.0
+    assert [r.kind for r in sc.receivers] == ["reactive", "absorbing"]
+
+
+@pytest.mark.slow
+def test_design_stage_matches_the_response_layer_on_channel_flow():
+    # the design objectives' differentiable response (images + flow series in JAX) against the response layer
+    import capacity
+    from capacity.design.objectives import response
+    from capacity.design.optimise import build_problem
+    from capacity.design.params import base_physical, layout
+    from capacity.physics.response import channel_response
+
+    sc = capacity.load_scenario("channel_flow").with_channel(memory=6)
+    problem = build_problem(sc, ("symbol_interval",), "bits-per-second")
+    assert problem.walls is not None and problem.transport is not None
+    hits, tail = response(problem, layout(problem.space, base_physical(problem.space), problem.base_symbols))
+    ref = channel_response(sc, "lone")
+    np.testing.assert_allclose(np.asarray(hits), ref.hits, rtol=1e-6, atol=1e-12)
+
+
+def test_flow_across_a_wall_is_refused():
+    text = SCENARIO.replace("FLOW", '["0 um/s", "0 um/s", "10 um/s"]') + textwrap.dedent(
+        """
+        [[wall]]
+        point = [0, 0, "-10 um"]
+        normal = [0, 0, 1]
+        """
+    )
+    with pytest.raises(InputError, match="across wall"):
+        _load(text)

@@ -116,12 +116,13 @@ def validity_notes(lay) -> list[str]:
 def shadowed_arrays(lay, memory: int, options: dict, lone, particles):
     """The ``shadowed`` model with a flow or reactive receivers: ``(hits, tail, stderr, notes)``.
 
-    With at most one absorbing or reactive receiver nothing shadows it, and the lone model is the answer (passive
-    receivers never perturb the field). With several, the renewal model is not extended to these boundaries: the
-    particle simulator (``particles``, the response layer's model function) is used, with a note.
+    With at most one absorbing or reactive receiver and no wall nothing shadows it, and the lone model is the
+    answer (passive receivers never perturb the field). With several (a wall's image counts as one), the renewal
+    model is not extended to these boundaries: the particle simulator (``particles``, the response layer's model
+    function) is used, with a note.
     """
     notes = validity_notes(lay)
-    if np.count_nonzero(~lay.passive) <= 1:
+    if np.count_nonzero(~lay.passive) <= 1 and getattr(lay, "walls", None) is None:
         hits, tail = lone(memory)
         return hits, tail, None, ["shadowed model: at most one absorbing or reactive receiver, so the lone model "
                                   "(flow / reactive closed forms) is exact for it"] + notes
@@ -148,10 +149,12 @@ def transport_spec(scenario) -> Transport | None:
 
 
 def design_hits(spec: Transport, emitters, centres, radii, passive, offsets, diffusion, degradation,
-                symbol_interval, memory: int):
+                symbol_interval, memory: int, walls=None, depth: int = 0):
     """Differentiable ``(hits (E, R, L+1), tail (E, R))`` for the design stage (JAX arrays; ``passive`` a
     concrete bool mask): the flow series of :mod:`capacity.physics.flow` with a flow, else the lone closed forms
-    with the reactive columns from :mod:`capacity.physics.reactive`."""
+    with the reactive columns from :mod:`capacity.physics.reactive`. ``walls`` (a
+    :class:`capacity.physics.images.WallGeometry`) with image ``depth``: every receiver is replaced by its images
+    (cells ``|m| <= depth``) and the copies are summed back, as in the response layer."""
     import jax.numpy as jnp
 
     from capacity.physics.flow import flow_hits_traced
@@ -161,17 +164,28 @@ def design_hits(spec: Transport, emitters, centres, radii, passive, offsets, dif
     passive = np.asarray(passive, dtype=bool)
     rates = np.where(passive, np.inf, np.asarray(spec.rates, dtype=float))
     flow = np.asarray(spec.flow, dtype=float)
+    copies = 1
+    if walls is not None:
+        from capacity.physics import images
+
+        cells = images.image_cells(walls, int(depth))
+        centres = jnp.concatenate([images.image_points_jax(centres, walls, m) for m in cells])
+        copies = len(cells)
+        radii, offsets = jnp.tile(radii, copies), jnp.tile(offsets, copies)
+        passive, rates = np.tile(passive, copies), np.tile(rates, copies)
     if np.any(flow != 0.0):
-        return flow_hits_traced(emitters, centres, radii, passive, rates, offsets, diffusion, degradation,
-                                jnp.asarray(flow), symbol_interval, memory)
-    hits, tail = lone_hits(emitters, centres, radii, jnp.asarray(passive), offsets, diffusion, degradation,
-                           symbol_interval, memory)
-    reactive = np.flatnonzero(np.isfinite(rates))
-    if reactive.size:
-        rh, rt = reactive_hits(emitters, centres[reactive], radii[reactive], jnp.asarray(rates[reactive]),
-                               diffusion, degradation, symbol_interval, memory)
-        hits, tail = hits.at[:, reactive].set(rh), tail.at[:, reactive].set(rt)
-    return hits, tail
+        hits, tail = flow_hits_traced(emitters, centres, radii, passive, rates, offsets, diffusion, degradation,
+                                      jnp.asarray(flow), symbol_interval, memory)
+    else:
+        hits, tail = lone_hits(emitters, centres, radii, jnp.asarray(passive), offsets, diffusion, degradation,
+                               symbol_interval, memory)
+        reactive = np.flatnonzero(np.isfinite(rates))
+        if reactive.size:
+            rh, rt = reactive_hits(emitters, centres[reactive], radii[reactive], jnp.asarray(rates[reactive]),
+                                   diffusion, degradation, symbol_interval, memory)
+            hits, tail = hits.at[:, reactive].set(rh), tail.at[:, reactive].set(rt)
+    n_e, n_r = hits.shape[0], hits.shape[1] // copies
+    return (hits.reshape(n_e, copies, n_r, -1).sum(axis=1), tail.reshape(n_e, copies, n_r).sum(axis=1))
 
 
 def growing_lone(lay, tolerance: float, cap: int, lone, start: int = 32):
