@@ -216,3 +216,44 @@ def test_channel_shadowed_images_vs_particles_two_receivers():
     np.testing.assert_allclose(sh.hits.sum(-1), pa.hits.sum(-1), rtol=0.10)
     # no degradation in a channel: every molecule is taken eventually, the tails close the budget
     np.testing.assert_allclose((sh.hits.sum(-1) + sh.tail).sum(-1), 1.0, rtol=1e-12)
+
+
+# ------------------------------------------------------------------------------------------ design objectives
+def test_design_hits_with_walls_match_the_response_and_differentiate():
+    import jax
+    import jax.numpy as jnp
+
+    from capacity.physics.walled import design_hits
+
+    geom = images.WallGeometry(np.array([0.0, 1.0, 0.0]), -7e-6, 8e-6)
+    em, rad = jnp.zeros((1, 3)), jnp.asarray([5e-6])
+    passive = np.array([True])
+
+    @jax.jit
+    def total(c, ts):
+        h, _ = design_hits("lone", geom, 3, None, em, c, rad, passive, jnp.reshape(ts, (1,)), D, 0.0, ts, 3)
+        return h.sum()
+
+    c0 = jnp.asarray([[12e-6, 0.0, 0.0]])
+    g_c, g_t = jax.jit(jax.grad(total, argnums=(0, 1)))(c0, 0.1)
+    for k in range(3):  # central differences (steps 1e-9 m, 1e-6 s)
+        step = jnp.zeros((1, 3)).at[0, k].set(1e-9)
+        fd = (total(c0 + step, 0.1) - total(c0 - step, 0.1)) / 2e-9
+        assert float(g_c[0, k]) == pytest.approx(float(fd), rel=1e-5, abs=1e-3)
+    fd_t = (total(c0, 0.1 + 1e-6) - total(c0, 0.1 - 1e-6)) / 2e-6
+    assert float(g_t) == pytest.approx(float(fd_t), rel=1e-6)
+    # the same images as the response layer (lone model, passive receiver, depth 3 in both)
+    cm, copies = images.mirror_spheres(np.asarray(c0), geom, 3)
+    ref, _ = lone_hits(np.zeros((1, 3)), cm, np.tile([5e-6], copies), np.ones(copies, bool), np.full(copies, 0.1),
+                       D, 0.0, 0.1, memory=3)
+    h, _ = design_hits("lone", geom, 3, None, em, c0, rad, passive, jnp.asarray([0.1]), D, 0.0, 0.1, 3)
+    np.testing.assert_allclose(np.asarray(h), images.fold(np.asarray(ref), copies), rtol=1e-13)
+
+
+def test_design_with_walls_refuses_geometry_tunables():
+    from capacity.design.optimise import build_problem
+
+    s = _scenario([_wall(-7)])
+    with pytest.raises(InputError, match="no wall constraint") as err:
+        build_problem(s, ["gap"], "bits-per-second")
+    assert err.value.field == "tune"

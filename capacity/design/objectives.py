@@ -94,8 +94,9 @@ class Problem(NamedTuple):
     residual : "interference" (tail added as mean interference) or "drop".
     objective : one of :data:`OBJECTIVES`.  rate : one of :data:`RATES`.
     budget : mean molecules per symbol or None.  lags : lags enumerated by "isi-as-noise", or the look-ahead J
-    of "isi-window" (static).  transport : :class:`capacity.physics.transport.Transport` (surface reaction rates
-    and uniform flow) or None for absorbing / passive receivers in a still fluid.
+    of "isi-window" (static).  walls : :class:`capacity.physics.images.WallGeometry` or None; image_depth : image
+    cells kept in a channel (static); pulses : (E,) release durations in s, or None for impulses.
+    transport : :class:`capacity.physics.transport.Transport` (surface reaction rates and uniform flow) or None for absorbing / passive receivers in a still fluid.
     """
 
     space: DesignSpace
@@ -111,6 +112,9 @@ class Problem(NamedTuple):
     budget: float | None
     lags: int
     transport: object = None
+    walls: object = None
+    image_depth: int = 0
+    pulses: object = None
 
 
 class Fixed(NamedTuple):
@@ -148,6 +152,13 @@ def response(problem: Problem, lay: Layout):
         offsets = jnp.asarray(problem.space.sample_fraction) * lay.symbol_interval
         return design_hits(problem.transport, lay.emitters, lay.centres, lay.radii, problem.space.passive, offsets,
                            problem.diffusion, problem.degradation, lay.symbol_interval, problem.memory)
+    if problem.walls is not None or problem.pulses is not None:  # reflecting walls (images), release pulses
+        from capacity.physics.walled import design_hits as walled_hits
+
+        offsets = jnp.asarray(problem.space.sample_fraction) * lay.symbol_interval
+        return walled_hits(problem.model, problem.walls, problem.image_depth, problem.pulses, lay.emitters,
+                           lay.centres, lay.radii, np.asarray(problem.space.passive), offsets, problem.diffusion,
+                           problem.degradation, lay.symbol_interval, problem.memory)
     if problem.model == "shadowed":
         from capacity.physics.shadowed import shadowed_hits
 

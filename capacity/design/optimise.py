@@ -126,9 +126,11 @@ def build_problem(scenario, tune, objective, *, rate="auto", bounds=None, min_ga
     from capacity.physics.transport import transport_spec
 
     problem = problem._replace(transport=transport_spec(scenario))
+    problem = _walls_and_pulses(scenario, problem, tune)
     memory = scenario.channel.memory
     if not isinstance(memory, (int, np.integer)):
         memory = auto_memory(problem, float(scenario.channel.memory_tolerance))
+    problem = _image_depth(problem, int(memory), float(scenario.channel.symbol_interval))
     lags = 0
     n_sym = symbols.shape[0]
     while lags < memory and n_sym ** (lags + 1) <= MAX_PASTS:
@@ -142,6 +144,55 @@ def build_problem(scenario, tune, objective, *, rate="auto", bounds=None, min_ga
 
         return problem._replace(memory=int(memory), lags=auto_window(n_sym, int(memory), WINDOW_FUTURES))
     return problem._replace(memory=int(memory), lags=lags if rate == "isi-as-noise" else 0)
+
+
+#: tunables that move the geometry (refused with walls: the optimiser has no wall constraint)
+_GEOMETRY_TUNABLES = ("gap", "spacing", "radius")
+
+
+def _walls_and_pulses(scenario, problem: Problem, tune) -> Problem:
+    """Reflecting walls (image layouts) and release pulses of the scenario in the problem; geometry tunables with
+    walls are refused (InputError)."""
+    from capacity.physics.images import wall_geometry
+
+    walls = wall_geometry(scenario.walls)
+    pulses = np.asarray(scenario.emitter_pulses, dtype=float)
+    if walls is not None:
+        moved = [t for t in tune if t in _GEOMETRY_TUNABLES]
+        if moved:
+            raise InputError("tune", moved[0],
+                             "moves receivers, but the optimiser has no wall constraint (a receiver could cross a "
+                             "wall)", "with walls, tune symbol_interval, levels or split only")
+    problem = problem._replace(walls=walls, pulses=tuple(pulses) if np.any(pulses > 0.0) else None)
+    # provisional depth for the memory decision (horizon of MAX_MEMORY lags); set again once L is known
+    return _image_depth(problem, MAX_MEMORY, float(scenario.channel.symbol_interval))
+
+
+def _image_depth(problem: Problem, memory: int, symbol_interval: float) -> Problem:
+    """Image depth for a channel, chosen for the horizon (memory + 1) Ts at the scenario's symbol interval."""
+    if problem.walls is None:
+        return problem
+    from capacity.physics.walled import design_depth
+
+    depth, _, _ = design_depth(problem.walls, problem.space.emitters, (memory + 1) * symbol_interval,
+                               problem.diffusion, problem.degradation, problem.model, len(problem.space.radii))
+    return problem._replace(image_depth=int(depth))
+
+
+def wall_design_notes(problem: Problem, symbol_interval: float) -> list[str]:
+    """Design notes on walls and pulses (the image truncation bound at the given symbol interval)."""
+    out = []
+    if problem.pulses is not None:
+        out.append("release pulses (rectangular) of " + ", ".join(f"{p * 1e3:.4g} ms" for p in problem.pulses))
+    if problem.walls is not None:
+        from capacity.physics.images import truncation_bounds
+
+        slot, _ = truncation_bounds(problem.walls, problem.space.emitters, problem.image_depth,
+                                    (problem.memory + 1) * symbol_interval, problem.diffusion, problem.degradation)
+        what = "a channel" if problem.walls.channel else "one reflecting wall"
+        out.append(f"walls ({what}): method of images in the design objective, cells |m| <= {problem.image_depth}, "
+                   f"truncation error per slot <= {slot:.2g} at the best symbol interval")
+    return out
 
 
 def auto_memory(problem: Problem, tolerance: float) -> int:
@@ -384,6 +435,8 @@ def optimise_design(scenario, tune, objective: str, *, rate: str = "auto", start
         notes.append("isi-as-noise: uniform i.i.d. input over the alphabet (any budget ignored)")
     if "split" in tune:
         notes.append("the emitter split has no scenario field: it is reported in 'best' only")
+    notes += wall_design_notes(problem, float(np.asarray(layout(space, best_phys, problem.base_symbols)
+                                                         .symbol_interval)))
     polished = stderr = lower = upper = float("nan")
     if do_polish:
         ts = float(np.asarray(layout(space, best_phys, problem.base_symbols).symbol_interval))

@@ -49,6 +49,7 @@ __all__ = [
     "fold",
     "image_cells",
     "image_points",
+    "image_points_jax",
     "mirror_spheres",
     "reflect_into_fluid",
     "truncation_bounds",
@@ -121,6 +122,20 @@ def image_points(points, geom: WallGeometry, cell: int) -> np.ndarray:
     else:
         z_new = 2.0 * geom.lower - z + ((cell + 1) * geom.width if cell != -1 else 0.0)
     return x + (z_new - z)[:, None] * geom.normal[None, :]
+
+
+def image_points_jax(points, geom: WallGeometry, cell: int):
+    """:func:`image_points` in JAX (differentiable in ``points``; the wall geometry and cell are constants)."""
+    import jax.numpy as jnp
+
+    normal = jnp.asarray(np.asarray(geom.normal, dtype=float))
+    x = jnp.reshape(points, (-1, 3))
+    z = x @ normal
+    if cell % 2 == 0:
+        z_new = z + (cell * geom.width if cell else 0.0)
+    else:
+        z_new = 2.0 * geom.lower - z + ((cell + 1) * geom.width if cell != -1 else 0.0)
+    return x + (z_new - z)[:, None] * normal[None, :]
 
 
 def mirror_spheres(centres, geom: WallGeometry, depth: int) -> tuple[np.ndarray, int]:

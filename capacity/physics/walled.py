@@ -95,6 +95,65 @@ def shadowed_arrays(lay, absorbing, memory: int):
     return _img.fold(hits, copies), _img.fold(tail, copies)
 
 
+#: image depth of the design objectives in a channel (they differentiate through every copy)
+DESIGN_MAX_DEPTH = 12
+
+
+def design_depth(walls, emitters, horizon: float, diffusion: float, degradation: float, model: str,
+                 n_receivers: int) -> tuple[int, float, float]:
+    """(depth, slot bound, tail bound) of the image layout the design objectives use (capped for cost)."""
+    if walls is None:
+        return 0, 0.0, 0.0
+    cap = DESIGN_MAX_DEPTH
+    if model == "shadowed":
+        cap = min(cap, max(0, (SHADOWED_MAX_SPHERES // max(n_receivers, 1) - 1) // 2))
+    return _img.choose_depth(walls, emitters, horizon, diffusion, degradation, max_depth=cap)
+
+
+def design_hits(model: str, walls, depth: int, pulses, emitters, centres, radii, passive, offsets, diffusion,
+                degradation, symbol_interval, memory: int):
+    """Differentiable ``(hits (E, R, L+1), tail (E, R))`` for the design objectives, with walls (images up to
+    ``depth``; ``walls`` a :class:`~capacity.physics.images.WallGeometry` or None) and release ``pulses`` ((E,)
+    seconds or None). ``model`` is "lone" or "shadowed"; ``passive`` a NumPy bool array (static)."""
+    import jax.numpy as jnp
+
+    from capacity.physics.lone import lone_hits
+    from capacity.physics.pulses import laplace_hits, lone_pulse_hits
+    from capacity.physics.shadowed import shadowed_hits
+
+    n_rx = int(np.asarray(passive).shape[0])
+    copies = 1
+    if walls is not None:
+        cells = _img.image_cells(walls, depth)
+        copies = len(cells)
+        centres = jnp.concatenate([_img.image_points_jax(centres, walls, m) for m in cells])
+        radii, offsets = jnp.tile(radii, copies), jnp.tile(offsets, copies)
+        passive = np.tile(np.asarray(passive), copies)
+    common = (diffusion, degradation, symbol_interval)
+
+    def impulse():
+        if model == "shadowed":
+            return shadowed_hits(emitters, centres, radii, *common, memory)
+        return lone_hits(emitters, centres, radii, jnp.asarray(passive), offsets, *common, memory=memory)
+
+    hits, tail = impulse()
+    if pulses is not None:
+        p = jnp.asarray(np.asarray(pulses, dtype=float))
+        spread = p > 0.0
+        safe = jnp.where(spread, p, symbol_interval)  # no division by 0 (and no NaN gradient) for impulses
+        if model == "shadowed":
+            hp, tp = laplace_hits(emitters, centres, radii, *common, memory, safe)
+        else:
+            hp, tp = lone_pulse_hits(emitters, centres, radii, jnp.asarray(passive), offsets, safe, *common,
+                                     memory=memory)
+        hits = jnp.where(spread[:, None, None], hp, hits)
+        tail = jnp.where(spread[:, None], tp, tail)
+    e = hits.shape[0]
+    hits = hits.reshape(e, copies, n_rx, -1).sum(axis=1)
+    tail = tail.reshape(e, copies, n_rx).sum(axis=1)
+    return hits, tail
+
+
 def recurrent_tail(lay, hits, tail, model: str):
     """Tails in a channel without degradation, where every molecule meets an absorbing receiver eventually.
 
