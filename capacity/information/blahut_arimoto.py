@@ -53,6 +53,7 @@ from scipy import special
 from capacity import _jax  # noqa: F401  (float64)
 from capacity._inputs import real_array, real_number, whole_number
 from capacity.errors import InputError
+from capacity.information import _accelerated as accelerated
 from capacity.information import _active_set as active_set
 from capacity.information import _ba_kernel as kernel
 from capacity.information.result import CapacityResult
@@ -60,20 +61,53 @@ from capacity.information.result import CapacityResult
 __all__ = ["blahut_arimoto", "capacity_cost_curve", "mutual_information"]
 
 LN2 = math.log(2.0)
+QUICK_EVALS = 60  # evaluations of the NumPy extrapolated iteration before the compiled Newton solver takes over
+QUICK_MIX = 0.01  # weight of the start law in the compiled solver's warm start after a quick attempt
 ACTIVE_SET_ABOVE = 64  # more inputs than this: working sets (``_active_set``) instead of one S x S Newton solve
 
 
 class _Prepared(NamedTuple):
-    w: jax.Array | None  # (S', Y') rows summing to 1 (overflow column), zero-padded to a bucket size;
-    #                      None for large alphabets (S > ACTIVE_SET_ABOVE), served by working sets
-    negent: jax.Array | None  # (S',) sum_y W ln W
-    valid: jax.Array | None  # (S',) True for real symbols, False for padding
+    kept: np.ndarray  # (S, Yk) kept output columns (a view of the input when nothing was lumped)
+    overflow: np.ndarray | None  # (S,) mass of the one overflow output (truncated + lumped), None if none
+    negent_np: np.ndarray  # (S,) sum_y W ln W over the kept outputs and the overflow output
     n_sym: int  # S
     tail_bits: float  # max_x (lumped mass) * log2 S
     n_outputs: int  # Y' kept (overflow included)
     n_given: int  # Y given
-    w_np: np.ndarray  # (S, Y') the same rows, unpadded in S (NumPy)
-    negent_np: np.ndarray  # (S,)
+    cache: dict  # padded and device copies, built on first use
+
+    @property
+    def large(self) -> bool:  # served by working sets (``_active_set``)
+        return self.n_sym > ACTIVE_SET_ABOVE
+
+    @property
+    def w_np(self) -> np.ndarray:
+        """(S, Y'') rows summing to 1: kept outputs, the overflow output, zero columns up to a bucket size."""
+        if "w_np" not in self.cache:
+            n_kept = self.kept.shape[1]
+            full = np.zeros((self.n_sym, _bucket(self.n_outputs, 64)))
+            full[:, :n_kept] = self.kept
+            if self.overflow is not None:
+                full[:, n_kept] = self.overflow
+            self.cache["w_np"] = full
+        return self.cache["w_np"]
+
+    def _device(self, name):
+        if self.large:
+            return None
+        if "w" not in self.cache:  # zero rows pad S to a bucket size: a few compiled kernels serve every shape
+            s_pad = _bucket(self.n_sym, 8)
+            w = np.zeros((s_pad, self.w_np.shape[1]))
+            w[: self.n_sym] = self.w_np
+            neg = np.zeros(s_pad)
+            neg[: self.n_sym] = self.negent_np
+            self.cache.update(w=jnp.asarray(w), negent=jnp.asarray(neg),
+                              valid=jnp.asarray(np.arange(s_pad) < self.n_sym))
+        return self.cache[name]
+
+    w = property(lambda self: self._device("w"))  # (S', Y'') padded, on the device (None for large S)
+    negent = property(lambda self: self._device("negent"))  # (S',)
+    valid = property(lambda self: self._device("valid"))  # (S',) True for real symbols
 
 
 def _matrix_of(transition) -> tuple[np.ndarray, np.ndarray]:
@@ -84,10 +118,10 @@ def _matrix_of(transition) -> tuple[np.ndarray, np.ndarray]:
     if w.ndim != 2 or w.shape[0] < 1 or w.shape[1] < 1:
         raise InputError("transition", w.shape, "must be an (S, Y) matrix of probabilities W(y|x)",
                          "pass a Transition or a 2-D array with one row per input symbol")
-    if not np.all(np.isfinite(w)) or np.any(w < 0):
+    sums = w.sum(axis=1)  # NaN or +inf entries make a row sum non-finite, -inf makes the minimum negative
+    if not (np.all(np.isfinite(sums)) and w.min() >= 0):
         raise InputError("transition", "matrix with negative or non-finite entries",
                          "probabilities must be finite and >= 0", "check how the matrix was built")
-    sums = w.sum(axis=1)
     if np.any(sums > 1 + 1e-9) or np.any(sums <= 0):
         raise InputError("transition", f"row sums in [{sums.min():.3g}, {sums.max():.3g}]",
                          "each row must sum to at most 1 (and be positive)",
@@ -98,11 +132,16 @@ def _matrix_of(transition) -> tuple[np.ndarray, np.ndarray]:
     else:
         tail = np.clip(1.0 - sums, 0.0, 1.0)
         tail = np.where(tail > 1e-13, tail, 0.0)  # row sums within rounding of 1 count as exact
-    return w, tail
+    log_w = getattr(transition, "log_matrix", None)
+    if log_w is not None:
+        log_w = np.asarray(log_w)
+        if log_w.shape != w.shape or log_w.dtype != np.float64:
+            log_w = None
+    return w, tail, log_w
 
 
 def _prepare(transition, tol: float) -> _Prepared:
-    w, tail = _matrix_of(transition)
+    w, tail, log_w = _matrix_of(transition)
     n_sym, n_out = w.shape
     log_s = math.log2(n_sym) if n_sym > 1 else 0.0
     # lump the lightest output columns while every row loses at most `budget` of its mass
@@ -111,32 +150,30 @@ def _prepare(transition, tol: float) -> _Prepared:
     candidates = np.flatnonzero(col_max <= budget)
     n_lump = 0
     lumped = tail.copy()
-    keep = np.ones(n_out, dtype=bool)
+    keep = None
     if candidates.size:
         order = candidates[np.argsort(col_max[candidates], kind="stable")]
         cum = np.cumsum(w[:, order], axis=1)
         n_lump = min(int(np.searchsorted(cum.max(axis=0), budget, side="right")), n_out - 1)
         if n_lump > 0:
+            keep = np.ones(n_out, dtype=bool)
             keep[order[:n_lump]] = False
             lumped = lumped + cum[:, n_lump - 1]
-    n_kept = n_out - n_lump
-    need_overflow = n_lump > 0 or tail.max() > 0
-    n_cols = n_kept + int(need_overflow)
-    # pad to bucket sizes so that a few compiled kernels serve every shape (zero rows/columns are inert)
-    large = n_sym > ACTIVE_SET_ABOVE
-    s_pad, y_pad = (n_sym if large else _bucket(n_sym, 8)), _bucket(n_cols, 64)
-    w_pad = np.zeros((s_pad, y_pad))
-    w_pad[:n_sym, :n_kept] = w[:, keep] if n_lump else w
-    if need_overflow:  # rows completed to 1 by the overflow output (mass = tail + lumped columns)
-        w_pad[:n_sym, n_kept] = np.maximum(1.0 - w_pad[:n_sym, :n_kept].sum(axis=1), 0.0)
-    real = w_pad[:n_sym, :n_cols]
-    neg_pad = np.zeros(s_pad)
-    neg_pad[:n_sym] = special.xlogy(real, real).sum(axis=1)
-    tail_bits = float(lumped.max()) * log_s
-    if large:
-        return _Prepared(None, None, None, n_sym, tail_bits, n_cols, n_out, w_pad, neg_pad)
-    return _Prepared(jnp.asarray(w_pad), jnp.asarray(neg_pad), jnp.asarray(np.arange(s_pad) < n_sym), n_sym,
-                     tail_bits, n_cols, n_out, w_pad[:n_sym], neg_pad[:n_sym])
+    kept = w[:, keep] if keep is not None else w
+    overflow = None
+    if n_lump > 0 or tail.max() > 0:  # rows completed to 1 by the overflow output (tail + lumped columns)
+        overflow = np.maximum(1.0 - kept.sum(axis=1), 0.0)
+    if log_w is not None:  # sum W ln W from the given logarithms (ln 0 = -inf is floored: 0 * -1e300 = 0)
+        negent = np.einsum("ij,ij->i", w, np.maximum(log_w, -1e300))
+        if keep is not None:
+            gone = order[:n_lump]
+            negent -= np.einsum("ij,ij->i", w[:, gone], np.maximum(log_w[:, gone], -1e300))
+    else:
+        negent = special.xlogy(kept, kept).sum(axis=1)
+    if overflow is not None:
+        negent = negent + special.xlogy(overflow, overflow)
+    n_cols = kept.shape[1] + int(overflow is not None)
+    return _Prepared(kept, overflow, negent, n_sym, float(lumped.max()) * log_s, n_cols, n_out, {})
 
 
 def _bucket(n: int, minimum: int) -> int:
@@ -188,17 +225,40 @@ class _Point(NamedTuple):
 
 
 def _run(prep: _Prepared, b: np.ndarray, s: float, p0: np.ndarray, tol: float, max_iter: int) -> _Point:
-    if prep.w is None:  # large alphabet: working sets, certificate over all inputs
+    if prep.large:  # large alphabet: working sets, certificate over all inputs
         sol = active_set.solve(prep.w_np, prep.negent_np, b, float(s), p0, tol * LN2, max_iter)
         return _Point(float(s), sol.p, sol, float(sol.p @ b))
+    quick = accelerated.solve(prep.kept, prep.negent_np, b, float(s), p0, tol * LN2, min(QUICK_EVALS, max_iter),
+                              overflow=prep.overflow)
+    if quick.converged:  # certified without the compiled solver
+        ev = kernel.Evaluation(quick.d, quick.q, quick.info, quick.objective, quick.gap)
+        slope = _cost_slope(quick.p, prep.w_np, b) if np.any(b > 0) else 0.0
+        sol = kernel.Solution(quick.p, ev, np.asarray(quick.evaluations), np.asarray(0), np.asarray(False),
+                              np.asarray(slope))
+        return _Point(float(s), quick.p, sol, float(quick.p @ b))
+    start = (1.0 - QUICK_MIX) * quick.p + QUICK_MIX * p0  # warm start (inputs heading to 0 keep some mass)
     sol = kernel.solve(prep.w, prep.negent, _pad(b, prep), jnp.asarray(s, dtype=jnp.float64), prep.valid,
-                       _pad(p0, prep), jnp.asarray(tol * LN2), jnp.asarray(max_iter))
+                       _pad(start, prep), jnp.asarray(tol * LN2), jnp.asarray(max_iter))
     p = np.asarray(sol.p)[: prep.n_sym]
+    sol = sol._replace(iterations=sol.iterations + quick.evaluations)
     return _Point(float(s), p, sol, float(p @ b))
 
 
+def _cost_slope(p, w, b, support_threshold=1e-12) -> float:
+    """d(mean cost)/ds at an optimum, NumPy twin of ``_ba_kernel._cost_derivative`` (implicit function theorem
+    on the KKT system on the support: [H -1; 1^T 0][dp; dnu] = [b; 0], dP/ds = b . dp <= 0)."""
+    on = p > support_threshold * p.max()
+    q = p @ w
+    wn = w[on] / np.sqrt(np.maximum(q, kernel.TINY))[None, :]
+    n_mat = wn @ wn.T  # -H on the support
+    n_mat = n_mat + 1e-12 * np.max(np.abs(np.diag(n_mat))) * np.eye(len(n_mat))
+    u_c, u_a = np.linalg.solve(n_mat, np.stack([-b[on], np.ones(on.sum())], axis=1)).T
+    dp = u_c - (u_c.sum() / u_a.sum()) * u_a
+    return float(b[on] @ dp)
+
+
 def _pad(v: np.ndarray, prep: _Prepared) -> jax.Array:
-    if prep.valid is None:
+    if prep.large:
         return v
     out = np.zeros(prep.valid.shape[0])
     out[: prep.n_sym] = v
