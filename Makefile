@@ -4,7 +4,7 @@ VENV    ?= .venv
 BIN     := $(VENV)/bin
 STAMP   := $(VENV)/.installed
 
-.PHONY: demo test test-slow bench studies lint clean
+.PHONY: demo test test-slow bench studies lint clean fuzz
 
 $(BIN)/python:
 	$(PY) -m venv $(VENV)
@@ -25,6 +25,9 @@ test-slow: $(STAMP)
 
 bench: $(STAMP)
 	$(BIN)/python benchmarks/run_all.py
+
+fuzz: $(STAMP)
+	$(BIN)/python benchmarks/fuzz.py --minutes 10
 
 studies: $(STAMP)
 	$(BIN)/python studies/validate_responses.py
