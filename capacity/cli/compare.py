@@ -7,7 +7,17 @@ from pathlib import Path
 
 import numpy as np
 
-from capacity.cli._common import SAFETY, add_scenario_argument, apply_overrides, check_plot_path, dump_json, fmt, load
+from capacity.cli._common import (
+    SAFETY,
+    add_effort_arguments,
+    add_scenario_argument,
+    apply_overrides,
+    check_plot_path,
+    dump_json,
+    effort_of,
+    fmt,
+    load,
+)
 from capacity.compare import SCHEMES
 from capacity.errors import InputError
 
@@ -23,13 +33,16 @@ def parse_budgets(text: str) -> np.ndarray:
         raise InputError("--budgets", text, "need 0 < LO < HI and N >= 2", "write e.g. --budgets 5:200:8")
     return np.geomspace(lo, hi, n)
 
+#: simulated symbols for each detector's error rate
+DETECTOR_SYMBOLS = 10_000
+
 
 def add_parser(sub) -> None:
     p = sub.add_parser(
         "compare",
         help="spatial vs amplitude (and mixed) signalling at equal budget; rate-versus-budget curves",
         description=(
-            "Compare signalling schemes on one layout at the same mean molecule budget: ISI-free capacity, "
+            "Compare signalling schemes on one layout at the same mean molecule budget: single-slot capacity, "
             "i.i.d. information rate with ISI and its bounds, and each detector's symbol error rate and the rate "
             "its hard decisions support, per symbol, second and molecule. With --budgets, also rate-versus-budget "
             "curves (CSV and PNG) with the bounds as a shaded band."
@@ -41,9 +54,8 @@ def add_parser(sub) -> None:
     p.add_argument("--budget", type=float, metavar="MOLECULES",
                    help="mean molecules per symbol for the side-by-side table (default: the scenario's)")
     p.add_argument("--budgets", metavar="LO:HI:N", help="budget range for rate-versus-budget curves (log spaced)")
-    p.add_argument("--symbols", type=int, default=10_000, metavar="N",
-                   help="symbols per forward-recursion run and per detector simulation (default 10000)")
-    p.add_argument("--runs", type=int, default=4, metavar="K", help="independent runs for standard errors")
+    add_effort_arguments(p)
+    p.add_argument("--quiet", action="store_true", help="no progress on stderr")
     p.add_argument("--seed", type=int, metavar="S", help="random seed (default: the scenario's)")
     p.add_argument("--model", choices=("lone", "shadowed", "particles"), help="response model override")
     p.add_argument("--force", action="store_true",
@@ -58,12 +70,15 @@ def format_table(scenario, records) -> str:
     ts = scenario.channel.symbol_interval
     lines = [f"{scenario.name}: schemes at a mean budget of {fmt(records[0]['budget'])} molecules/symbol, "
              f"slot {ts * 1e3:g} ms", ""]
-    head = f"  {'scheme':<11}{'ISI-free':>10}{'rate':>9}{'+/-':>9}{'lower':>9}{'upper':>9}{'bits/s':>9}{'bits/mol':>10}"
+    head = (f"  {'scheme':<11}{'1-slot cap.':>12}{'rate':>9}{'std err':>9}{'lower':>9}{'upper':>9}{'bits/s':>9}"
+            f"{'bits/mol':>10}")
     lines.append(head + "   (bits/symbol unless stated)")
     for r in records:
-        lines.append(f"  {r['scheme']:<11}{fmt(r['isi_free_capacity']):>10}{fmt(r['information_rate']):>9}"
-                     f"{fmt(r['stderr']):>9}{fmt(r['lower_bound']):>9}{fmt(r['upper_bound']):>9}"
+        lines.append(f"  {r['scheme']:<11}{fmt(r['isi_free_capacity']):>12}{fmt(r['information_rate']):>9}"
+                     f"{fmt(r['stderr'], 2):>9}{fmt(r['lower_bound']):>9}{fmt(r['upper_bound']):>9}"
                      f"{fmt(r['bits_per_second']):>9}{fmt(r['bits_per_molecule']):>10}")
+    lines.append("  1-slot cap.: single-slot capacity (Blahut-Arimoto on the release slot, later arrivals ignored; "
+                 "not a ceiling); rate: rate with ISI; lower/upper: its bracket")
     lines.append("")
     lines.append(f"  {'scheme':<11}{'detector':<19}{'SER':>9}{'95% interval':>22}{'hard rate':>11}")
     for r in records:
@@ -90,15 +105,17 @@ def run(args) -> int:
     budgets = parse_budgets(args.budgets) if args.budgets else None
     out = Path(args.out) if args.out else None
     response = channel_response(scenario, args.model, seed=args.seed, force=args.force)
-    records = compare_schemes(scenario, response, schemes, budget=args.budget, n_symbols=args.symbols,
-                              n_runs=args.runs, detector_symbols=args.symbols, seed=args.seed)
+    effort = effort_of(args)
+    quiet = args.quiet or args.json or not sys.stderr.isatty()
+    names = applicable_schemes(scenario, schemes)
+    with tqdm(total=len(names), desc="schemes", unit="scheme", disable=quiet, file=sys.stderr, leave=False) as bar:
+        records = compare_schemes(scenario, response, names, budget=args.budget, detector_symbols=DETECTOR_SYMBOLS,
+                                  seed=args.seed, effort=effort, progress=bar.update)
     result = {"scenario": scenario.name, "model": response.model, "units": "bits",
               "symbol_interval": scenario.channel.symbol_interval, "schemes": records, "caution": SAFETY}
     if budgets is not None:
-        names = applicable_schemes(scenario, schemes)
-        with tqdm(total=len(names) * len(budgets), desc="budget sweep", disable=args.json) as bar:
-            curves = budget_sweep(scenario, response, budgets, names, n_symbols=max(args.symbols // 2, 1000),
-                                  n_runs=args.runs, seed=args.seed,
+        with tqdm(total=len(names) * len(budgets), desc="budget sweep", disable=quiet, file=sys.stderr) as bar:
+            curves = budget_sweep(scenario, response, budgets, names, seed=args.seed, effort=effort,
                                   csv_path=(out / "curves.csv") if out else None, progress=bar.update)
         result["curves"] = curves
         from capacity.report.plots import plot_rate_curves
