@@ -290,3 +290,18 @@ def test_no_warning_from_in_process_validation_of_huge_layout():
         warnings.simplefilter("error")
         with pytest.raises(InputError):
             scenario_from_dict(data)
+
+
+# ------------------------------------------------------------------------ found by make fuzz (benchmarks/fuzz.py)
+@pytest.mark.parametrize("means", [[[1e300, 5e299, 3e299]], [[1e308, 1.0]], [[1e16, 1.0]]])
+def test_poisson_transition_means_near_the_float_limit_are_refused_at_once(means):
+    # fuzz cases poisson_transition:1377241756 (the grid-edge bisection never ended: counts beyond 2**52 are not
+    # distinct floats) and poisson_transition:396528494 (overflow warning in the Bernstein bound)
+    start = time.perf_counter()
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        with pytest.raises(InputError, match="max_outputs") as info:
+            poisson_transition(means, tol=1e-12)
+    assert info.value.field == "outputs" and info.value.fix
+    assert "e+" in str(info.value.value)  # the grid size is shown in short form, not as a 300-digit integer
+    assert time.perf_counter() - start < 10.0  # it used to hang

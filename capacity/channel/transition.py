@@ -116,11 +116,13 @@ def _check_tol(tol) -> float:
 
 def _product_grid(maxima, max_outputs: int, what: str) -> np.ndarray:
     max_outputs = _check_max_outputs(max_outputs)
-    total_f = float(np.prod(np.asarray(maxima, dtype=float) + 1.0))
+    with np.errstate(over="ignore"):  # an overflow to inf is caught below
+        total_f = float(np.prod(np.asarray(maxima, dtype=float) + 1.0))
     if not total_f <= max_outputs:  # also catches an infinite grid before any int() of it
-        shown = " x ".join(str(int(v) + 1) for v in maxima)
+        shown = " x ".join(str(int(v) + 1) if v < 1e15 else f"{v + 1:.3g}" for v in maxima)
+        total = int(total_f) if total_f < 1e15 else f"{total_f:.3g}"
         raise InputError(
-            "outputs", f"{shown} = {int(total_f) if math.isfinite(total_f) else total_f} count vectors",
+            "outputs", f"{shown} = {total} count vectors",
             f"the {what} output grid is larger than max_outputs = {max_outputs}",
             "use fewer receivers, smaller releases (lower mean counts), a larger tol, or the Monte Carlo "
             "estimator (capacity.information.montecarlo) instead of an exact transition matrix")
@@ -150,7 +152,7 @@ def _poisson_upper(q: float, m: np.ndarray) -> np.ndarray:
 
     ``scipy.stats.poisson.isf``, except where it returns NaN (q below ~1e-16, or means beyond ~1e10): there a
     bisection on ``poisson.sf`` between 0 and the Bernstein bound m + 2L/3 + sqrt(2 m L), L = ln(1/q), which
-    already has P(Y > bound) <= q.
+    already has P(Y > bound) <= q (returned as it is when it exceeds 2**52, where counts stop being exact floats).
     """
     y = np.asarray(stats.poisson.isf(q, m), dtype=float)
     bad = ~np.isfinite(y)
@@ -158,7 +160,10 @@ def _poisson_upper(q: float, m: np.ndarray) -> np.ndarray:
         mu = m[bad]
         big_l = -math.log(q)
         lo = np.full(mu.shape, -1.0)  # P(Y > lo) > q (always true at -1)
-        hi = np.ceil(mu + 2.0 * big_l / 3.0 + np.sqrt(2.0 * mu * big_l)) + 1.0  # P(Y > hi) <= q
+        hi = np.ceil(mu + 2.0 * big_l / 3.0 + np.sqrt(mu) * math.sqrt(2.0 * big_l)) + 1.0  # P(Y > hi) <= q
+        # beyond 2**52 consecutive counts are no longer distinct floats (the bisection would never end); such a
+        # grid is far past any max_outputs, so the bound itself is returned and the grid check refuses it
+        lo = np.where(hi > 2.0**52, hi - 1.0, lo)
         while np.any(hi - lo > 1.0):
             mid = np.floor(0.5 * (lo + hi))
             ok = stats.poisson.sf(mid, mu) <= q
