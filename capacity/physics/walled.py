@@ -209,7 +209,9 @@ def notes(lay, memory: int, model: str) -> list[str]:
                        "not followed into a sphere (probability ~1e-8 per step)")
         return out
     if not geom.channel:
-        out.append(f"{walls}: method of images (each receiver and its mirror image; exact for the image layout)")
+        exact = ("passive receivers exactly" if model == "lone" else
+                 "no truncation; the shadowed model's renewal approximation applies to the image layout")
+        out.append(f"{walls}: method of images, each receiver and its mirror image ({exact})")
     else:
         n_abs = int(np.sum(~lay.passive))
         depth = (shadowed_depth(lay, memory, n_abs) if model == "shadowed" and n_abs
