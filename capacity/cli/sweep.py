@@ -5,7 +5,7 @@ from __future__ import annotations
 
 import sys
 
-from capacity.cli._common import add_scenario_argument, dump_json, fmt
+from capacity.cli._common import add_scenario_argument, dump_json, fmt, load
 
 
 def add_parser(sub) -> None:
@@ -59,12 +59,13 @@ def run(args) -> int:
     from capacity.sweep.run import run_sweep
     from capacity.sweep.spec import make_spec
 
+    quiet = args.quiet or args.json
+    load(args.scenario, strict=getattr(args, "strict", False), announce=not quiet)  # the base scenario's warnings
     settings = {"symbols": args.symbols, "runs": args.runs, "bound_samples": args.bound_samples,
                 "window_samples": args.window_samples, "model": args.model, "schemes": args.schemes,
                 "law_search": False if args.no_law_search else None}
     spec = make_spec(args.scenario, args.vary, measure=args.measure, settings=settings, seed=args.seed,
                      force=args.force)
-    quiet = args.quiet or args.json
 
     def log(text):
         if not quiet:

@@ -71,7 +71,9 @@ def open_cluster(workers: int | None = None, scheduler: str | None = None):
     if n < 0:
         raise InputError("--workers", workers, "must be >= 0", "give the number of worker processes (0 = in "
                          "this process)")
+    # no dashboard; the scheduler's small HTTP server (health checks) on a free port, not the busy default 8787
     cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=True, dashboard_address=None,
+                           scheduler_kwargs={"dashboard_address": "127.0.0.1:0"},
                            silence_logs=logging.CRITICAL, env=dict(WORKER_ENV))
     client = Client(cluster, set_as_default=False)
     try:
