@@ -17,7 +17,7 @@ from capacity.errors import InputError
 
 SCHEMES = ("amplitude", "spatial", "multiplex", "hybrid")
 CSV_FIELDS = (
-    "scheme", "budget", "mean_molecules", "isi_free_capacity", "gap", "information_rate", "stderr",
+    "scheme", "budget", "mean_molecules", "single_slot_capacity", "certified_gap", "information_rate", "stderr",
     "lower_bound", "upper_bound", "bits_per_second", "bits_per_molecule", "rate_method", "input_law",
     "lower_bound_method", "upper_bound_method", "bracket_relative", "flag",
 )
@@ -62,8 +62,8 @@ def _row(scheme, budget, rates) -> dict:
         "scheme": scheme,
         "budget": budget,
         "mean_molecules": rates.mean_molecules,
-        "isi_free_capacity": d["isi_free_capacity"],
-        "gap": d["gap"],
+        "single_slot_capacity": d["single_slot_capacity"],
+        "certified_gap": d["certified_gap"],
         "information_rate": d["information_rate"],
         "stderr": d["stderr"],
         "lower_bound": d["lower_bound"],
@@ -139,13 +139,13 @@ def budget_sweep(scenario, response, budgets, schemes=None, *, n_symbols=5_000, 
     when it still beats the law found there its row is carried (``input_law`` says so): unused molecules cost
     nothing. Each finished point is appended to ``csv_path`` at once (no lost work).
 
-    Returns {scheme: {"budget", "rate", "stderr", "lower", "upper", "isi_free", "symbol_interval"}}.
+    Returns {scheme: {"budget", "rate", "stderr", "lower", "upper", "single_slot", "symbol_interval"}}.
     """
     from capacity.rates import link_rates
 
     seed = scenario.channel.seed if seed is None else seed
     schemes = applicable_schemes(scenario, schemes)
-    curves = {s: {k: [] for k in ("budget", "rate", "stderr", "lower", "upper", "isi_free")} for s in schemes}
+    curves = {s: {k: [] for k in ("budget", "rate", "stderr", "lower", "upper", "single_slot")} for s in schemes}
     writer = None
     handle = None
     if csv_path is not None:
@@ -177,7 +177,7 @@ def budget_sweep(scenario, response, budgets, schemes=None, *, n_symbols=5_000, 
                 c["stderr"].append(row["stderr"])
                 c["lower"].append(row["lower_bound"])
                 c["upper"].append(row["upper_bound"])
-                c["isi_free"].append(row["isi_free_capacity"])
+                c["single_slot"].append(row["single_slot_capacity"])
                 if writer is not None:
                     writer.writerow(row)
                     handle.flush()

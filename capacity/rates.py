@@ -112,16 +112,17 @@ class LinkRates(NamedTuple):
         cap = self.isi_free
         r = self.information_rate
         return {
-            "units": "bits",
+            "units": {"rates": "bits/symbol", "bits_per_second": "bits/s", "bits_per_molecule": "bits/molecule",
+                      "symbol_interval": "s", "molecules": "molecules per symbol", "interference": "counts per slot"},
             "alphabet": np.asarray(self.alphabet.symbols).tolist(),
             "symbol_labels": list(self.alphabet.labels),
             "scheme": self.alphabet.scheme,
-            "isi_free_capacity": cap.capacity,
-            "gap": cap.gap,
+            "single_slot_capacity": cap.capacity,
+            "certified_gap": cap.gap,
             "input_distribution": np.asarray(cap.input_distribution).tolist(),
-            "isi_free_mean_molecules": cap.mean_cost,
-            "isi_free_converged": cap.converged,
-            "isi_free_message": cap.message,
+            "single_slot_mean_molecules": cap.mean_cost,
+            "single_slot_converged": cap.converged,
+            "single_slot_message": cap.message,
             "iid_input": np.asarray(self.iid_input).tolist(),
             "information_rate": r.rate,
             "stderr": r.stderr,
@@ -139,14 +140,20 @@ class LinkRates(NamedTuple):
             "bounds": {k: {"rate": v.rate, "stderr": v.stderr, "method": v.method} for k, v in self.bounds.items()},
             "mean_molecules": self.mean_molecules,
             "symbol_interval": self.symbol_interval,
+            "bits_per_symbol": {
+                "single_slot_capacity": cap.capacity,
+                "information_rate": r.rate,
+                "lower_bound": self.lower_bound,
+                "upper_bound": self.upper_bound,
+            },
             "bits_per_second": {
-                "isi_free_capacity": cap.capacity / self.symbol_interval,
+                "single_slot_capacity": cap.capacity / self.symbol_interval,
                 "information_rate": self.per_second(r.rate),
                 "lower_bound": self.per_second(self.lower_bound),
                 "upper_bound": self.per_second(self.upper_bound),
             },
             "bits_per_molecule": {
-                "isi_free_capacity": self.per_molecule(cap.capacity, cap.mean_cost),
+                "single_slot_capacity": self.per_molecule(cap.capacity, cap.mean_cost),
                 "information_rate": self.per_molecule(r.rate),
                 "lower_bound": self.per_molecule(self.lower_bound),
                 "upper_bound": self.per_molecule(self.upper_bound),
@@ -253,7 +260,7 @@ def link_rates(
     if scenario.channel.counting == "binomial":
         binomial = _binomial_comparison(transition, symbols, hits[:, :, 0], background, cost, budget, tol)
         notes.append(f"exact multinomial counting (fixed release counts, memoryless): ISI-free capacity "
-                     f"{binomial['isi_free_capacity']:.6g} bits vs Poisson {isi_free.capacity:.6g}; largest "
+                     f"{binomial['single_slot_capacity']:.6g} bits vs Poisson {isi_free.capacity:.6g}; largest "
                      f"total-variation distance between the laws {binomial['max_tv']:.2e}; the rates with ISI use "
                      "the Poisson law")
     law = np.asarray(isi_free.input_distribution if iid_input is None else iid_input, dtype=float)
@@ -397,7 +404,7 @@ def _binomial_comparison(poisson, symbols, probs, background, cost, budget, tol)
     result = blahut_arimoto(exact, cost=cost if budget is not None else None, budget=budget, tol=tol)
     distance = law_distance(poisson, exact)
     return {
-        "isi_free_capacity": result.capacity,
+        "single_slot_capacity": result.capacity,
         "gap": result.gap,
         "input_distribution": np.asarray(result.input_distribution).tolist(),
         "max_tv": distance["max_tv"],

@@ -24,7 +24,7 @@ from _record import write_record  # noqa: E402
 
 from capacity.report.plots import _log_axis, save_figure  # noqa: E402
 
-FIELDS = ("symbol_interval", "memory", "isi_free_capacity", "information_rate", "stderr", "lower_bound",
+FIELDS = ("symbol_interval", "memory", "single_slot_capacity", "information_rate", "stderr", "lower_bound",
           "upper_bound", "mean_molecules", "bits_per_second", "bits_per_molecule", "rate_method", "input_law",
           "lower_bound_method", "upper_bound_method", "bracket_relative", "flag")
 
@@ -99,7 +99,7 @@ def _plot(rows, path):
     rate = np.array([r["information_rate"] for r in rows])
     lo = np.array([r["lower_bound"] for r in rows])
     hi = np.array([r["upper_bound"] for r in rows])
-    free = np.array([r["isi_free_capacity"] for r in rows])
+    free = np.array([r["single_slot_capacity"] for r in rows])
     mol = np.array([r["mean_molecules"] for r in rows])
     fig, axes = plt.subplots(1, 2, figsize=(7, 2.8))
     for ax, scale, label in ((axes[0], 1 / ts, "bits per second"), (axes[1], 1 / mol, "bits per molecule")):

@@ -58,7 +58,7 @@ def main(argv=None) -> int:
         dets = [d for d in r["detectors"] if d.get("rate") is not None]
         best = max(dets, key=lambda d: d["rate"]) if dets else None
         det = f"{best['name']} ({best['symbol_error_rate']:.3g}, {best['rate']:.3f})" if best else "-"
-        lines.append(f"| {r['scheme']} | {r['isi_free_capacity']:.3f} | {r['information_rate']:.3f} ± "
+        lines.append(f"| {r['scheme']} | {r['single_slot_capacity']:.3f} | {r['information_rate']:.3f} ± "
                      f"{r['stderr']:.3f} | {r['lower_bound']:.3f} .. {r['upper_bound']:.3f} | "
                      f"{r['bits_per_second']:.3g} | {r['bits_per_molecule']:.3g} | {det} |")
     (out / "table.md").write_text(

@@ -93,11 +93,15 @@ def test_response_json_keys_and_closed_form(small, tmp_path):
 
 def test_rate_json_keys_and_ordering(small):
     data = json.loads(_run("rate", str(small), "--json", "--symbols", "3000", "--runs", "4", "--markov").stdout)
-    for key in ("isi_free_capacity", "gap", "input_distribution", "alphabet", "iid_input", "information_rate",
-                "stderr", "lower_bound", "upper_bound", "bounds", "bits_per_second", "bits_per_molecule",
-                "mean_molecules", "hits", "units"):
+    for key in ("single_slot_capacity", "certified_gap", "input_distribution", "alphabet", "iid_input",
+                "information_rate", "stderr", "lower_bound", "upper_bound", "bounds", "bits_per_second",
+                "bits_per_molecule", "mean_molecules", "hits", "units"):
         assert key in data, key
-    assert data["units"] == "bits"
+    assert data["schema"] == 2 and isinstance(data["units"], dict)
+    # per symbol, per second and per molecule nested alike, and consistent with each other
+    assert set(data["bits_per_symbol"]) == set(data["bits_per_second"]) == set(data["bits_per_molecule"])
+    for key, value in data["bits_per_symbol"].items():
+        assert data["bits_per_second"][key] == pytest.approx(value / data["symbol_interval"], rel=1e-12)
     assert data["mean_molecules"] <= 15 + 1e-6  # the budget holds
     b = data["bounds"]
     tol = 4 * max(data["stderr"], 1e-3)
@@ -106,7 +110,7 @@ def test_rate_json_keys_and_ordering(small):
     assert b["dfe"]["rate"] <= data["information_rate"] + tol
     assert data["information_rate"] <= b["mf"]["rate"] + tol
     # Blahut-Arimoto certificate (Arimoto 1972; Blahut 1972): the reported gap is non-negative and below tol
-    assert 0 <= data["gap"] < 1e-6
+    assert 0 <= data["certified_gap"] < 1e-6
     # an optimised Markov input does at least as well as the i.i.d. law (Kavcic 2001), within standard errors
     m = data["markov_input"]
     assert m["rate"] >= data["information_rate"] - 4 * (m["stderr"] + data["stderr"])
@@ -195,7 +199,7 @@ def test_compare_at_equal_budget_and_over_budgets(tmp_path):
     names = [s["scheme"] for s in data["schemes"]]
     assert names == ["amplitude", "spatial"]
     for s in data["schemes"]:
-        for key in ("scheme", "budget", "isi_free_capacity", "information_rate", "stderr", "lower_bound",
+        for key in ("scheme", "budget", "single_slot_capacity", "information_rate", "stderr", "lower_bound",
                     "upper_bound", "bits_per_second", "bits_per_molecule", "detectors"):
             assert key in s
         # the budget is met: mean molecules per symbol never exceed it

@@ -77,15 +77,15 @@ def _z_capacity(p):
     # references sheet: no background, on mean 1 is the Z channel with p = e^-1 (closed form)
     (0.0, 0.05, _z_capacity(np.exp(-1.0))),
 ])
-def test_isi_free_capacity_matches_outside_values(background, hit, reference):
+def test_single_slot_capacity_matches_outside_values(background, hit, reference):
     records = compare_schemes(_scenario([background]), _response([[[hit]]]), n_symbols=2000, n_runs=4,
                               detector_symbols=1000)
     assert [r["scheme"] for r in records] == ["amplitude"]  # one emitter: amplitude only (documented)
     rec = records[0]
     best, _ = _best_onoff(background, hit * PEAK)
     assert best == pytest.approx(reference, abs=1e-9)  # the scalar search reproduces the outside value
-    assert rec["isi_free_capacity"] == pytest.approx(reference, abs=1e-8)
-    assert reference <= rec["isi_free_capacity"] + rec["gap"] + 1e-12  # certified bracket
+    assert rec["single_slot_capacity"] == pytest.approx(reference, abs=1e-8)
+    assert reference <= rec["single_slot_capacity"] + rec["certified_gap"] + 1e-12  # certified bracket
     # memory 0: the i.i.d. rate at the capacity-achieving law is the capacity (within its standard errors)
     assert abs(rec["information_rate"] - reference) < 4 * rec["stderr"] + 1e-3
     assert rec["budget"] is None
@@ -102,7 +102,7 @@ def test_budget_binds_as_an_independent_constrained_optimisation(budget):
     rec = compare_schemes(_scenario([background]), _response([[[hit]]]), budget=budget, n_symbols=2000,
                           n_runs=4, detector_symbols=1000)[0]
     assert rec["budget"] == budget
-    assert rec["isi_free_capacity"] == pytest.approx(best, abs=1e-8)
+    assert rec["single_slot_capacity"] == pytest.approx(best, abs=1e-8)
     assert rec["mean_molecules"] == pytest.approx(budget, rel=1e-8)
     assert rec["details"]["iid_input"][1] == pytest.approx(p_best, abs=1e-6)
     # per-second and per-molecule figures are the per-symbol rate divided by the interval / the molecules used
@@ -111,7 +111,7 @@ def test_budget_binds_as_an_independent_constrained_optimisation(budget):
     # a budget from the scenario is used when none is passed
     rec2 = compare_schemes(_scenario([background], budget=budget), _response([[[hit]]]), n_symbols=2000,
                            n_runs=4, detector_symbols=1000)[0]
-    assert rec2["budget"] == budget and rec2["isi_free_capacity"] == pytest.approx(best, abs=1e-8)
+    assert rec2["budget"] == budget and rec2["single_slot_capacity"] == pytest.approx(best, abs=1e-8)
 
 
 # -- information rate with memory against exact enumeration --------------------------------------------------------
@@ -180,7 +180,7 @@ def test_information_rate_and_bounds_with_memory_match_exact_enumeration():
     p = d["iid_input"][1]  # the i.i.d. law the rates with ISI use (ISI-free optimum or one optimised with ISI)
     assert sum(d["iid_input"]) == pytest.approx(1.0, abs=1e-12) and rec["input_law"] == d["input_law_choice"]
     # the ISI-free capacity uses lag 0 only (documented): the on/off Poisson optimum with on mean PEAK h0
-    assert rec["isi_free_capacity"] == pytest.approx(_best_onoff(BG1, PEAK * MEM1[0])[0], abs=1e-8)
+    assert rec["single_slot_capacity"] == pytest.approx(_best_onoff(BG1, PEAK * MEM1[0])[0], abs=1e-8)
     lo, hi = _iid_rate_bracket(p)
     assert hi - lo < 2.5e-3  # the bracket is far narrower than the estimate's 4 standard errors (~0.015)
     assert lo - 4 * rec["stderr"] < rec["information_rate"] < hi + 4 * rec["stderr"]
@@ -211,10 +211,10 @@ def test_budget_sweep_points_csv_and_skipped_budgets(tmp_path):
                           progress=lambda: calls.append(1))
     assert list(curves) == ["amplitude"]
     c = curves["amplitude"]
-    assert set(c) == {"budget", "rate", "stderr", "lower", "upper", "isi_free", "symbol_interval"}
+    assert set(c) == {"budget", "rate", "stderr", "lower", "upper", "single_slot", "symbol_interval"}
     assert c["symbol_interval"] == TS and len(calls) == 3
     assert c["budget"] == [2.0, 5.0, 100.0]
-    assert all(len(c[k]) == 3 for k in ("rate", "stderr", "lower", "upper", "isi_free"))
+    assert all(len(c[k]) == 3 for k in ("rate", "stderr", "lower", "upper", "single_slot"))
     assert np.all(np.diff(c["rate"]) >= 0)  # non-decreasing by construction (documented)
     _, p_free = _best_onoff(background, hit * PEAK)
     rows = _onoff_rows(background, hit * PEAK)
@@ -223,13 +223,13 @@ def test_budget_sweep_points_csv_and_skipped_budgets(tmp_path):
     assert tuple(table[0]) == CSV_FIELDS and len(table) == 3
     for k, b in enumerate(c["budget"]):
         best, p_best = _best_onoff(background, hit * PEAK, p_max=min(1.0, b / PEAK))
-        assert c["isi_free"][k] == pytest.approx(best, abs=1e-8)  # scipy.optimize, as above
+        assert c["single_slot"][k] == pytest.approx(best, abs=1e-8)  # scipy.optimize, as above
         # molecules actually used: the budget, or the unconstrained optimum's mean cost when it does not bind
         assert float(table[k]["mean_molecules"]) == pytest.approx(min(b, p_free * PEAK), abs=1e-5)
         # memory 0: the rate is I at the law used (numpy sum), within its standard errors
         assert abs(c["rate"][k] - _mi_bits(np.array([1 - p_best, p_best]), rows)) < 4 * c["stderr"][k] + 1e-3
         assert float(table[k]["budget"]) == b and table[k]["scheme"] == "amplitude"
-        assert float(table[k]["isi_free_capacity"]) == pytest.approx(c["isi_free"][k], abs=1e-12)
+        assert float(table[k]["single_slot_capacity"]) == pytest.approx(c["single_slot"][k], abs=1e-12)
         assert float(table[k]["information_rate"]) == pytest.approx(c["rate"][k], abs=1e-12)
 
 
@@ -260,11 +260,11 @@ def test_every_scheme_is_reported_and_its_capacity_matches_plain_blahut_arimoto(
     assert [r["scheme"] for r in records] == list(SCHEMES)  # two emitters: every scheme, in the documented order
     y = np.arange(60)  # Poisson mass beyond 59 < 1e-25 at the largest mean (8.9)
     for rec in records:
-        assert set(CSV_FIELDS) <= set(rec) and rec["details"]["units"] == "bits"
+        assert set(CSV_FIELDS) <= set(rec) and rec["details"]["units"]["rates"] == "bits/symbol"
         symbols = np.asarray(rec["details"]["alphabet"])  # (S, E) molecules
         means = background[0] + symbols @ hits[:, 0, 0]  # (S,)
         lo, hi = _plain_blahut_arimoto(poisson.pmf(y[None, :], means[:, None]))
-        assert lo - 1e-9 <= rec["isi_free_capacity"] <= hi + 1e-9
+        assert lo - 1e-9 <= rec["single_slot_capacity"] <= hi + 1e-9
         assert len(rec["details"]["symbol_labels"]) == symbols.shape[0]
         names = [d["name"] for d in rec["detectors"]]
         # the threshold detector is listed only for two-symbol alphabets; every other detector always

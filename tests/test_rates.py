@@ -43,7 +43,7 @@ def _poisson_mi(law, means, ymax=200):
     return float(law @ terms.sum(axis=1))
 
 
-def test_memoryless_link_rate_equals_isi_free_capacity():
+def test_memoryless_link_rate_equals_single_slot_capacity():
     """With one slot of memory (L = 0) the i.i.d. rate at the capacity-achieving law is the capacity itself."""
     s = _scenario()
     rates = link_rates(s, _response([[[0.2]]]), _ook(), n_symbols=4000, n_runs=8)
@@ -100,7 +100,7 @@ def test_binomial_counting_is_reported_beside_poisson():
     rates = link_rates(s, _response([[[h]]]), _ook(peak=float(n)), n_symbols=2000, n_runs=4)
     z = (1 - h) ** n
     expected = np.log2(1 + (1 - z) * z ** (z / (1 - z)))
-    assert rates.binomial["isi_free_capacity"] == pytest.approx(expected, abs=1e-8)
+    assert rates.binomial["single_slot_capacity"] == pytest.approx(expected, abs=1e-8)
     # Poisson thinning gives the Z-channel with p = exp(-N h) instead (references.md, Poisson channels)
     zp = np.exp(-n * h)
     assert rates.isi_free.capacity == pytest.approx(np.log2(1 + (1 - zp) * zp ** (zp / (1 - zp))), abs=1e-8)

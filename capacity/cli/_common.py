@@ -71,7 +71,16 @@ def to_jsonable(obj):
     return obj
 
 
+#: version of the JSON documents the commands write (top-level key ``schema``); raised when a key is renamed or
+#: removed. 2: ``single_slot_*`` (was ``isi_free_*``), ``certified_gap`` (was ``gap`` in rate records), ``units``
+#: an object everywhere, ``bits_per_symbol`` beside ``bits_per_second`` and ``bits_per_molecule``.
+SCHEMA = 2
+
+
 def dump_json(data, path: str | os.PathLike | None = None) -> str:
+    """JSON text of ``data`` (a top-level dict gets the ``schema`` key first); written to ``path`` if given."""
+    if isinstance(data, dict) and "schema" not in data:
+        data = {"schema": SCHEMA, **data}
     text = json.dumps(to_jsonable(data), indent=2)
     if path is not None:
         Path(path).parent.mkdir(parents=True, exist_ok=True)

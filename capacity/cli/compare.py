@@ -74,7 +74,7 @@ def format_table(scenario, records) -> str:
             f"{'bits/mol':>10}")
     lines.append(head + "   (bits/symbol unless stated)")
     for r in records:
-        lines.append(f"  {r['scheme']:<11}{fmt(r['isi_free_capacity']):>12}{fmt(r['information_rate']):>9}"
+        lines.append(f"  {r['scheme']:<11}{fmt(r['single_slot_capacity']):>12}{fmt(r['information_rate']):>9}"
                      f"{fmt(r['stderr'], 2):>9}{fmt(r['lower_bound']):>9}{fmt(r['upper_bound']):>9}"
                      f"{fmt(r['bits_per_second']):>9}{fmt(r['bits_per_molecule']):>10}")
     lines.append("  1-slot cap.: single-slot capacity (Blahut-Arimoto on the release slot, later arrivals ignored; "
@@ -111,7 +111,9 @@ def run(args) -> int:
     with tqdm(total=len(names), desc="schemes", unit="scheme", disable=quiet, file=sys.stderr, leave=False) as bar:
         records = compare_schemes(scenario, response, names, budget=args.budget, detector_symbols=DETECTOR_SYMBOLS,
                                   seed=args.seed, effort=effort, progress=bar.update)
-    result = {"scenario": scenario.name, "model": response.model, "units": "bits",
+    result = {"scenario": scenario.name, "model": response.model,
+              "units": {"rates": "bits/symbol", "bits_per_second": "bits/s", "bits_per_molecule": "bits/molecule",
+                        "symbol_interval": "s", "budget": "molecules per symbol"},
               "symbol_interval": scenario.channel.symbol_interval, "schemes": records, "caution": SAFETY}
     if budgets is not None:
         with tqdm(total=len(names) * len(budgets), desc="budget sweep", disable=quiet, file=sys.stderr) as bar:

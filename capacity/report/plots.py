@@ -90,7 +90,7 @@ def plot_rate_curves(curves, path, *, per_second: bool = False, title: str | Non
         ax.fill_between(b, np.asarray(c["lower"]) * scale, np.asarray(c["upper"]) * scale,
                         color=st["color"], alpha=0.18, linewidth=0)
         # the single-slot capacity is not a ceiling (it ignores later arrivals): hollow markers, no line
-        ax.plot(b, np.asarray(c["isi_free"]) * scale, linestyle="none", marker=st["marker"], markersize=3.5,
+        ax.plot(b, np.asarray(c["single_slot"]) * scale, linestyle="none", marker=st["marker"], markersize=3.5,
                 markerfacecolor="none", markeredgecolor=st["color"], markeredgewidth=0.7)
     _log_axis(ax)
     ax.set_xlabel("mean molecules per symbol")

@@ -20,11 +20,11 @@ import traceback
 
 #: information outputs in bits per symbol (units of the others are in ``UNITS``)
 _RATE_OUTPUTS = ("information_rate", "stderr", "lower_bound", "upper_bound", "bits_per_second",
-                 "lower_bits_per_second", "upper_bits_per_second", "bits_per_molecule", "isi_free_capacity",
+                 "lower_bits_per_second", "upper_bits_per_second", "bits_per_molecule", "single_slot_capacity",
                  "mean_molecules", "memory", "model", "rate_method", "input_law", "lower_bound_method",
                  "upper_bound_method", "bracket_relative", "flag")
 UNITS = {"information_rate": "bits/symbol", "stderr": "bits/symbol", "lower_bound": "bits/symbol",
-         "upper_bound": "bits/symbol", "isi_free_capacity": "bits/symbol", "bits_per_second": "bits/s",
+         "upper_bound": "bits/symbol", "single_slot_capacity": "bits/symbol", "bits_per_second": "bits/s",
          "lower_bits_per_second": "bits/s", "upper_bits_per_second": "bits/s", "bits_per_molecule": "bits/molecule",
          "mean_molecules": "molecules/symbol", "memory": "lags", "seconds": "s", "cpu_seconds": "s",
          "bracket_relative": "1"}
@@ -56,7 +56,7 @@ class RateMeasure:
 
     def merits(self, outputs) -> list[str]:
         return [o for o in ("bits_per_second", "information_rate", "bits_per_molecule", "lower_bound",
-                            "isi_free_capacity") if o in outputs]
+                            "single_slot_capacity") if o in outputs]
 
     def panels(self, outputs) -> list:
         """Default line plots: [(y label, [(output, lower or None, upper or None, legend), ...]), ...]."""
@@ -92,7 +92,7 @@ def rate_outputs(rates, response) -> dict:
             "information_rate": float(r.rate), "stderr": float(r.stderr), "lower_bound": rates.lower_bound,
             "upper_bound": rates.upper_bound, "bits_per_second": float(r.rate) / ts,
             "lower_bits_per_second": rates.lower_bound / ts, "upper_bits_per_second": rates.upper_bound / ts,
-            "bits_per_molecule": rates.per_molecule(r.rate), "isi_free_capacity": float(rates.isi_free.capacity),
+            "bits_per_molecule": rates.per_molecule(r.rate), "single_slot_capacity": float(rates.isi_free.capacity),
             "mean_molecules": rates.mean_molecules, "memory": response.memory, "model": response.model,
             "rate_method": r.method}
 
@@ -103,7 +103,7 @@ class CompareMeasure:
     name = "compare"
     defaults = {"model": None, "n_symbols": 10_000, "n_runs": 4, "schemes": None}
     _PER = ("information_rate", "stderr", "lower_bound", "upper_bound", "bits_per_second", "bits_per_molecule",
-            "isi_free_capacity", "best_detector", "best_detector_ser")
+            "single_slot_capacity", "best_detector", "best_detector_ser")
 
     def schemes(self, scenario, settings) -> list[str]:
         from capacity.compare import applicable_schemes
