@@ -166,3 +166,27 @@ def check_plot_path(path: str) -> None:
     if Path(path).suffix.lower() not in PLOT_FORMATS:
         raise InputError("--plot", path, f"unknown plot format {Path(path).suffix or '(none)'}",
                          f"end the file name with one of {', '.join(PLOT_FORMATS)}")
+
+
+class status:
+    """A one-line note on stderr while a step runs (``with status("computing ...", quiet):``), only when stderr is
+    a terminal; erased when the step ends."""
+
+    def __init__(self, message: str, quiet: bool = False):
+        import sys
+
+        self.stream = sys.stderr
+        self.message = message
+        self.show = not quiet and self.stream.isatty()
+
+    def __enter__(self):
+        if self.show:
+            self.stream.write(f"{self.message} ...")
+            self.stream.flush()
+        return self
+
+    def __exit__(self, *exc):
+        if self.show:
+            self.stream.write("\r" + " " * (len(self.message) + 4) + "\r")
+            self.stream.flush()
+        return False

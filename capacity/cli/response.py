@@ -6,7 +6,15 @@ import sys
 
 import numpy as np
 
-from capacity.cli._common import SAFETY, add_scenario_argument, apply_overrides, check_plot_path, dump_json, load
+from capacity.cli._common import (
+    SAFETY,
+    add_scenario_argument,
+    apply_overrides,
+    check_plot_path,
+    dump_json,
+    load,
+    status,
+)
 from capacity.errors import InputError
 
 MODELS = ("lone", "shadowed", "particles")
@@ -29,6 +37,7 @@ def add_parser(sub) -> None:
     p.add_argument("--force", action="store_true",
                    help="start a particle run even when a timed pilot estimates it at more than an hour")
     p.add_argument("--json", action="store_true", help="print JSON instead of tables")
+    p.add_argument("--quiet", action="store_true", help="no progress on stderr")
     p.add_argument("--plot", metavar="FILE", help="write a plot of the responses (.png, .pdf or .svg)")
     p.add_argument("--log", action="store_true", help="logarithmic probability axis in the plot (shows cross-talk)")
     p.add_argument("--slots", type=int, metavar="N", help="show only the first N slots in the table (default all)")
@@ -104,8 +113,10 @@ def run(args) -> int:
     if args.plot:
         check_plot_path(args.plot)
     scenario = apply_overrides(load(args.scenario, strict=args.strict), args)
-    response = channel_response(scenario, args.model, particles=args.particles, seed=args.seed,
-                                progress=not args.json, force=args.force)
+    model = args.model or scenario.channel.response
+    with status(f"computing the {model} response", args.quiet or args.json or model == "particles"):
+        response = channel_response(scenario, args.model, particles=args.particles, seed=args.seed,
+                                    progress=not (args.json or args.quiet), force=args.force)
     if args.plot:
         from capacity.report.plots import plot_response
 
