@@ -72,13 +72,20 @@ def heat_map(ds, spec, output: str, path) -> Path:
     ax.set_ylabel(_axis_values(ay)[2])
     ax.set_xlabel(_axis_values(ax_)[2])
     if np.any(np.isfinite(z)):
+        from matplotlib.patches import Rectangle
+
         i, j = np.unravel_index(np.nanargmax(z), z.shape)
-        ax.plot(j, i, marker="*", markersize=14, color="red", markeredgecolor="white", label="best")
-        ax.legend(fontsize=7, loc="upper right")
+        ax.add_patch(Rectangle((j - 0.5, i - 0.5), 1, 1, fill=False, edgecolor="red", linewidth=2.5))
+        ax.plot(j - 0.32, i + 0.3, marker="*", markersize=11, color="red", markeredgecolor="white",
+                linestyle="none", label="best")
+        ax.legend(fontsize=7, loc="upper right", framealpha=0.8)
         if z.size <= 144:
+            lo, hi = np.nanmin(z), np.nanmax(z)
             for (a, b), v in np.ndenumerate(z):
                 if np.isfinite(v):
-                    ax.text(b, a, f"{v:.3g}", ha="center", va="center", fontsize=6, color="white")
+                    bright = hi > lo and (v - lo) / (hi - lo) > 0.6  # viridis is light at the top
+                    ax.text(b, a, f"{v:.3g}", ha="center", va="center", fontsize=7,
+                            color="black" if bright else "white")
     ax.set_title(f"{spec.measure}: {output.replace('_', ' ')}", fontsize=9)
     return _save(fig, path)
 

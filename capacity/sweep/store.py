@@ -62,7 +62,8 @@ class RowFile:
         if lines[0] != self.columns:
             raise InputError("--out", str(self.path.parent), f"{self.path.name} holds a sweep with other columns "
                              f"({', '.join(lines[0][:6])}...)", "give another --out folder for this sweep, or "
-                             "vary the same fields with the same measure")
+                             "vary the same fields with the same measure (a file written by an older version "
+                             "with other output columns: move it away to recompute)")
         return [dict(zip(self.columns, line, strict=True)) for line in lines[1:] if len(line) == len(self.columns)]
 
     def append(self, row: dict) -> None:
