@@ -1,8 +1,10 @@
 """How does the flow change the best symbol interval of the channel_flow demo?
 
-Runs ``studies/best_symbol_interval.py`` on the built-in ``channel_flow`` scenario and on a copy of it with the
-flow switched off (same channel, beads, emitters and signalling), and writes both sweeps plus a comparison
-record into ``results/symbol_interval_flow/`` (``flow/``, ``still/``, ``comparison.json``).
+For the built-in ``channel_flow`` scenario and a copy with the pump off (flow = 0; same channel, beads, emitters
+and signalling), sweeps the symbol interval, computes the scenario's default response (lone flow / reactive forms
+on the wall images, memory "auto") and the rate with ISI at the best i.i.d. law found (``link_rates``), and writes
+``results/symbol_interval_flow/``: ``sweep.csv`` (one row per scenario and interval, rows written as they finish)
+and ``record.json`` (settings, versions, best intervals, wall time).
 
     python studies/flow_symbol_interval.py [--quick]
 """
@@ -11,26 +13,20 @@ from __future__ import annotations
 
 import argparse
 import csv
-import re
 import sys
 import time
 from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-import best_symbol_interval  # noqa: E402
 from _record import write_record  # noqa: E402
 
-from capacity.scenario.load import builtin_path  # noqa: E402
+import capacity  # noqa: E402
+from capacity.physics.response import channel_response  # noqa: E402
+from capacity.rates import link_rates  # noqa: E402
+from capacity.schemes.builders import build_alphabet  # noqa: E402
 
-
-def _best(folder: Path) -> dict:
-    with open(folder / "symbol_interval.csv") as fh:
-        rows = [{k: float(v) if k in ("symbol_interval", "bits_per_second", "bits_per_molecule", "stderr",
-                                      "information_rate") else v for k, v in row.items()} for row in csv.DictReader(fh)]
-    best = max(rows, key=lambda r: r["bits_per_second"])
-    return {"symbol_interval_s": best["symbol_interval"], "bits_per_second": best["bits_per_second"],
-            "stderr_bits_per_second": best["stderr"] / best["symbol_interval"],
-            "grid": [(r["symbol_interval"], r["bits_per_second"]) for r in rows]}
+FIELDS = ("scenario", "symbol_interval", "memory", "information_rate", "stderr", "lower_bound", "upper_bound",
+          "bits_per_second", "stderr_bits_per_second", "mean_molecules", "bits_per_molecule", "seconds")
 
 
 def main(argv=None) -> int:
@@ -38,24 +34,53 @@ def main(argv=None) -> int:
     ap.add_argument("--quick", action="store_true")
     ap.add_argument("--out", default="results/symbol_interval_flow")
     args = ap.parse_args(argv)
-    started = time.perf_counter()
+    started = time.time()
+    flow = capacity.load_scenario("channel_flow")
+    still = flow.replace(medium=flow.medium.__class__(diffusion=flow.medium.diffusion,
+                                                      degradation=flow.medium.degradation, flow=(0.0, 0.0, 0.0)),
+                         name=flow.name + ", pump off")
+    grid = [0.05, 0.1, 0.2, 0.4] if args.quick else [0.05, 0.1, 0.15, 0.2, 0.3, 0.4, 0.6]
+    n_symbols, n_runs = (1000, 2) if args.quick else (3000, 4)
     out = Path(args.out)
-    (out / "still").mkdir(parents=True, exist_ok=True)
-    text = builtin_path("channel_flow").read_text()
-    still_text, n = re.subn(r'^flow = \[.*?\]', 'flow = ["0 um/s", "0 um/s", "0 um/s"]', text, flags=re.M)
-    assert n == 1
-    still = out / "still" / "channel_still.toml"
-    still.write_text(still_text.replace('name = "flow-cell twin beads (channel_flow demo)"',
-                                        'name = "flow-cell twin beads, pump off"'))
-    quick = ["--quick"] if args.quick else []
-    best_symbol_interval.main(["--scenario", "channel_flow", "--out", str(out / "flow")] + quick)
-    best_symbol_interval.main(["--scenario", str(still), "--out", str(out / "still")] + quick)
-    results = {"flow": _best(out / "flow"), "still": _best(out / "still")}
-    write_record(out, "comparison", {"scenario": "channel_flow (built-in) and the same with flow = 0",
-                                     "response_model": "the scenario's default (lone flow / reactive forms)",
-                                     "quick": args.quick}, results, started, time.perf_counter())
-    for key, r in results.items():
-        print(f"{key}: best Ts = {r['symbol_interval_s'] * 1e3:.0f} ms, {r['bits_per_second']:.3g} bits/s")
+    out.mkdir(parents=True, exist_ok=True)
+    rows = []
+    with open(out / "sweep.csv", "w", newline="") as fh:
+        writer = csv.DictWriter(fh, fieldnames=FIELDS)
+        writer.writeheader()
+        for label, base in (("flow", flow), ("still", still)):
+            for ts in grid:
+                t0 = time.time()
+                sc = base.with_channel(symbol_interval=float(ts))
+                response = channel_response(sc)
+                alphabet = build_alphabet(sc.signalling, len(sc.emitters))
+                d = link_rates(sc, response, alphabet, n_symbols=n_symbols, n_runs=n_runs, seed=11).to_dict()
+                row = {"scenario": label, "symbol_interval": ts, "memory": response.memory,
+                       "information_rate": d["information_rate"], "stderr": d["stderr"],
+                       "lower_bound": d["lower_bound"], "upper_bound": d["upper_bound"],
+                       "bits_per_second": d["bits_per_second"]["information_rate"],
+                       "stderr_bits_per_second": d["stderr"] / ts, "mean_molecules": d["mean_molecules"],
+                       "bits_per_molecule": d["bits_per_molecule"]["information_rate"],
+                       "seconds": round(time.time() - t0, 1)}
+                writer.writerow(row)
+                fh.flush()
+                rows.append(row)
+                print(f"{label:5s} Ts = {ts * 1e3:4.0f} ms: {row['bits_per_second']:.3g} bits/s "
+                      f"(+/- {row['stderr_bits_per_second']:.2g}), memory {response.memory}", flush=True)
+    best = {}
+    for label in ("flow", "still"):
+        mine = [r for r in rows if r["scenario"] == label]
+        top = max(mine, key=lambda r: r["bits_per_second"])
+        best[label] = {"symbol_interval_s": top["symbol_interval"], "bits_per_second": top["bits_per_second"],
+                       "stderr_bits_per_second": top["stderr_bits_per_second"],
+                       "memory": top["memory"]}
+    write_record(out, "record", {"scenarios": ["channel_flow (built-in)", "channel_flow with flow = 0"],
+                                 "grid_s": grid, "n_symbols": n_symbols, "runs": n_runs, "seed": 11,
+                                 "response_model": "scenario default (lone flow / reactive forms on wall images)",
+                                 "command": "python studies/flow_symbol_interval.py"
+                                 + (" --quick" if args.quick else "")},
+                 {"best": best, "rows": rows}, started, time.time())
+    for label, b in best.items():
+        print(f"{label}: best Ts = {b['symbol_interval_s'] * 1e3:.0f} ms, {b['bits_per_second']:.3g} bits/s")
     return 0
 
 

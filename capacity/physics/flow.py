@@ -140,7 +140,8 @@ def _thomas(lower, diag, upper, rhs):
     return x
 
 
-def flow_transform(q, source, centre, radius, inverse_rate, diffusion, flow, n_max: int = N_ORDERS):
+def flow_transform(q, source, centre, radius, inverse_rate, diffusion, flow, n_max: int = N_ORDERS,
+                   reactive: bool = True):
     """Laplace transform of the hitting (reaction) time density of one sphere in a uniform flow.
 
     q : (P,) complex, ``sqrt((p + k + |v|^2/(4D)) / D)``. source, centre : (3,) m. radius : m. inverse_rate :
@@ -154,7 +155,8 @@ def flow_transform(q, source, centre, radius, inverse_rate, diffusion, flow, n_m
     the Funk-Hecke expansion of ``exp(beta cos)`` give, divided by ``kappa``, the tridiagonal system
     ``A_n (D q k_n'/k_n / kappa - 1) - |v|/(2 kappa) (n/(2n-1) A_(n-1) + (n+1)/(2n+3) A_(n+1)) = -(2n+1) i_n(beta)``
     (truncated at ``n_max``). For an absorbing sphere (``1/kappa = 0``) ``A_n = (2n+1) i_n(beta)``, the Girsanov
-    form of the module docstring; for a reactive one it is exact as well (our own derivation).
+    form of the module docstring; for a reactive one it is exact as well (our own derivation). ``reactive``
+    (static) False skips the tridiagonal solve (absorbing spheres only: ``inverse_rate`` is then ignored).
     """
     rel = source - centre
     r0 = jnp.linalg.norm(rel)
@@ -172,7 +174,7 @@ def flow_transform(q, source, centre, radius, inverse_rate, diffusion, flow, n_m
     lower = jnp.broadcast_to(-half * _cx(n / jnp.maximum(2.0 * n - 1.0, 1.0))[:, None], diag.shape)
     upper = jnp.broadcast_to(-half * _cx((n + 1.0) / (2.0 * n + 3.0))[:, None], diag.shape)
     rhs = jnp.broadcast_to(-_cx((2.0 * n + 1.0) * spherical_i(beta, n_max))[:, None], diag.shape)
-    coeff = _thomas(lower, diag, upper, rhs)  # A_n, (N+1, P)
+    coeff = _thomas(lower, diag, upper, rhs) if reactive else -rhs  # A_n, (N+1, P)
     series = jnp.einsum("n,np->p", _cx(_legendre(cos_g, n_max)), coeff * rho)
     lone = _cx(radius / r0) * jnp.exp(-_cx(r0 - radius) * q)
     girsanov = jnp.exp(jnp.dot(flow, centre - source) / (2.0 * diffusion))

@@ -113,23 +113,67 @@ def validity_notes(lay) -> list[str]:
     return notes
 
 
+#: largest number of absorbing spheres (receivers and wall images) handed to the renewal model with flow
+FLOW_SHADOWED_MAX_SPHERES = 8
+
+
 def shadowed_arrays(lay, memory: int, options: dict, lone, particles):
     """The ``shadowed`` model with a flow or reactive receivers: ``(hits, tail, stderr, notes)``.
 
-    With at most one absorbing or reactive receiver and no wall nothing shadows it, and the lone model is the
-    answer (passive receivers never perturb the field). With several (a wall's image counts as one), the renewal
-    model is not extended to these boundaries: the particle simulator (``particles``, the response layer's model
-    function) is used, with a note.
+    * at most one absorbing or reactive receiver and no wall: nothing shadows it, the lone model is exact
+      (passive receivers never perturb the field);
+    * absorbing receivers only (no reactive one), impulse releases, no wall or one wall: the renewal model in the
+      flow (:mod:`capacity.physics.flow_shadowed`), a wall by the mirror image of every sphere (at most
+      :data:`FLOW_SHADOWED_MAX_SPHERES` spheres); passive receivers from the lone model;
+    * otherwise (reactive receivers with other beads or walls, a channel, pulses): the particle simulator
+      (``particles``, the response layer's model function), with a note.
     """
     notes = validity_notes(lay)
-    if np.count_nonzero(~lay.passive) <= 1 and getattr(lay, "walls", None) is None:
+    walls = getattr(lay, "walls", None)
+    pulses = getattr(lay, "pulses", None)
+    absorbing = np.flatnonzero(~lay.passive)
+    rates = np.where(lay.passive, np.inf, np.asarray(lay.rates, dtype=float))
+    if absorbing.size <= 1 and walls is None:
         hits, tail = lone(memory)
         return hits, tail, None, ["shadowed model: at most one absorbing or reactive receiver, so the lone model "
                                   "(flow / reactive closed forms) is exact for it"] + notes
+    reactive = bool(np.any(np.isfinite(rates[absorbing])))
+    pulsed = pulses is not None and bool(np.any(np.asarray(pulses) > 0.0))
+    if not reactive and not pulsed:
+        renewal = _renewal_with_flow(lay, memory, absorbing)
+        if renewal is not None:
+            hits, tail = lone(memory) if lay.passive.any() else (None, None)
+            out_h = np.zeros((lay.emitters.shape[0], lay.centres.shape[0], memory + 1))
+            out_t = np.zeros(out_h.shape[:2])
+            if hits is not None:
+                out_h[:, lay.passive], out_t[:, lay.passive] = hits[:, lay.passive], tail[:, lay.passive]
+            out_h[:, absorbing], out_t[:, absorbing] = renewal[0], renewal[1]
+            extra = ["passive receivers use the lone closed form: their counts ignore absorption by the absorbing "
+                     "spheres"] if lay.passive.any() else []
+            return out_h, out_t, None, ["shadowed model in the flow: absorbing receivers (and their wall images) "
+                                        "take molecules from each other"] + extra + notes
     hits, tail, stderr, more = particles(lay, memory, options, lone)
-    return hits, tail, stderr, ["shadowed model: several absorbing or reactive receivers with a flow or a reactive "
-                                "surface are not covered by the renewal model: switched to the particle "
-                                "simulator"] + more + notes
+    return hits, tail, stderr, ["shadowed model: reactive receivers with other beads or walls, a channel, or release "
+                                "pulses are not covered by the renewal model: switched to the particle simulator"] \
+        + more + notes
+
+
+def _renewal_with_flow(lay, memory: int, absorbing):
+    """Renewal model in the flow for the absorbing receivers (image spheres folded back), or None when the image
+    layout would exceed FLOW_SHADOWED_MAX_SPHERES."""
+    from capacity.physics import images
+    from capacity.physics.flow_shadowed import shadowed_flow_arrays
+
+    centres, radii, copies = lay.centres[absorbing], lay.radii[absorbing], 1
+    walls = getattr(lay, "walls", None)
+    if walls is not None:
+        if walls.channel or 2 * absorbing.size > FLOW_SHADOWED_MAX_SPHERES:
+            return None  # a channel needs many images: left to the particle simulator
+        centres, copies = images.mirror_spheres(centres, walls, 0)  # one wall: each sphere and its mirror image
+        radii = np.tile(radii, copies)
+    hits, tail = shadowed_flow_arrays(lay.emitters, centres, radii, lay.diffusion, lay.degradation,
+                                      np.asarray(lay.flow, dtype=float), lay.symbol_interval, memory)
+    return images.fold(hits, copies), images.fold(tail, copies)
 
 
 class Transport(NamedTuple):
