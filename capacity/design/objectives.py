@@ -151,7 +151,8 @@ def response(problem: Problem, lay: Layout):
 
         offsets = jnp.asarray(problem.space.sample_fraction) * lay.symbol_interval
         return design_hits(problem.transport, lay.emitters, lay.centres, lay.radii, problem.space.passive, offsets,
-                           problem.diffusion, problem.degradation, lay.symbol_interval, problem.memory)
+                           problem.diffusion, problem.degradation, lay.symbol_interval, problem.memory,
+                           walls=problem.walls, depth=problem.image_depth)
     if problem.walls is not None or problem.pulses is not None:  # reflecting walls (images), release pulses
         from capacity.physics.walled import design_hits as walled_hits
 

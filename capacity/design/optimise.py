@@ -163,6 +163,10 @@ def _walls_and_pulses(scenario, problem: Problem, tune) -> Problem:
             raise InputError("tune", moved[0],
                              "moves receivers, but the optimiser has no wall constraint (a receiver could cross a "
                              "wall)", "with walls, tune symbol_interval, levels or split only")
+    if problem.transport is not None and np.any(pulses > 0.0):
+        raise InputError("emitter.pulse", pulses.tolist(),
+                         "the design objectives do not combine release pulses with a flow or reactive receivers",
+                         "optimise with impulse releases, or evaluate fixed designs with capacity rate")
     problem = problem._replace(walls=walls, pulses=tuple(pulses) if np.any(pulses > 0.0) else None)
     # provisional depth for the memory decision (horizon of MAX_MEMORY lags); set again once L is known
     return _image_depth(problem, MAX_MEMORY, float(scenario.channel.symbol_interval))
