@@ -261,14 +261,6 @@ def format_summary(d: dict) -> str:
         rows = [[name, "receiver (|v| a / D)", _num(pe, fmt=".3g")] for name, pe in f["peclet"].items()]
         rows += [[name, "gap (|v| d / D)", _num(pe, fmt=".3g")] for name, pe in f["gap_peclet"].items()]
         out += _table(["Peclet number", "length", "value"], rows)
-    if d.get("flow"):
-        f = d["flow"]
-        out.append("")
-        out.append("flow: v = (" + ", ".join(_num(c, 1e6) for c in f["velocity"]) + f") µm/s, |v| = "
-                   f"{f['speed'] * 1e6:.4g} µm/s; lone captures and peak times above are for a still fluid")
-        rows = [[name, "receiver (|v| a / D)", _num(pe, fmt=".3g")] for name, pe in f["peclet"].items()]
-        rows += [[name, "gap (|v| d / D)", _num(pe, fmt=".3g")] for name, pe in f["gap_peclet"].items()]
-        out += _table(["Peclet number", "length", "value"], rows)
     out.append("")
     if d["warnings"]:
         out += ["warnings:"] + [f"  - {w}" for w in d["warnings"]]
