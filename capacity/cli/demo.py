@@ -19,7 +19,7 @@ def add_parser(sub) -> None:
         ),
     )
     p.add_argument("--out", default="results/demo", metavar="DIR", help="output folder (default results/demo)")
-    p.add_argument("--quick", action="store_true", help="fewer simulated symbols and budgets (a smoke run)")
+    p.add_argument("--quick", action="store_true", help="a quick run: short simulations under a 1 %% standard-error target, 3 budgets, one optimiser start")
     p.add_argument("--json", action="store_true", help="print the run record as JSON at the end")
     p.set_defaults(func=run)
 
@@ -36,6 +36,7 @@ def run(args) -> int:
     from capacity.cli.rate import compute, format_rates, rate_record
     from capacity.cli.response import format_response, response_record
     from capacity.compare import applicable_schemes, budget_sweep, compare_schemes
+    from capacity.effort import effort as make_effort
     from capacity.report.plots import plot_rate_curves, plot_response
     from capacity.scenario.summary import format_summary, summarise
 
@@ -53,9 +54,10 @@ def run(args) -> int:
     record["seconds"]["check"] = time.perf_counter() - t
 
     t = _step("channel response (shadowed model)")
-    effort = "quick" if args.quick else None  # the quick setting: short runs under a stopping rule
+    # the quick run: the quick setting at a 1 % relative standard error, fewer budgets, one optimiser start
+    effort = make_effort("quick", precision=0.01) if args.quick else None
     if args.quick:
-        response, _, rates = compute(scenario, effort="quick", progress=True)
+        response, _, rates = compute(scenario, effort=effort, progress=True)
     else:
         response, _, rates = compute(scenario, n_symbols=n_sym, n_runs=8, progress=True)
     print(format_response(scenario, response, max_slots=6))
@@ -72,7 +74,7 @@ def run(args) -> int:
     records = compare_schemes(scenario, response, n_symbols=n_sym // 2, n_runs=4, detector_symbols=n_sym // 2,
                               effort=effort)
     print(format_table(scenario, records))
-    budgets = np.geomspace(4, 60, 4 if args.quick else 5)
+    budgets = np.geomspace(4, 60, 3 if args.quick else 5)
     curves = budget_sweep(scenario, response, budgets, applicable_schemes(scenario), n_symbols=n_sym // 4,
                           n_runs=4, csv_path=out / "curves.csv", effort=effort)
     plot_rate_curves(curves, out / "curves.png", title=scenario.name)
@@ -86,8 +88,9 @@ def run(args) -> int:
         optimise_design = None
     if optimise_design is not None:
         t = _step("best symbol interval (bits per second)")
-        best = optimise_design(scenario, ("symbol_interval",), "bits-per-second", starts=2 if args.quick else 3,
-                               steps=60 if args.quick else 150, progress=True)
+        best = optimise_design(scenario, ("symbol_interval",), "bits-per-second", starts=1 if args.quick else 3,
+                               steps=40 if args.quick else 150, progress=True,
+                               polish_symbols=2_500 if args.quick else 20_000)
         print(f"best symbol interval {best.best['symbol_interval'] * 1e3:.1f} ms: objective ({best.rate} rate) "
               f"{best.value:.4g} bits/s; at that interval the reported rate (as `capacity rate`) is "
               f"{best.polished:.4g} +/- {best.polished_stderr:.2g} bits/s, bracket {best.lower_bound:.4g} .. "
