@@ -19,7 +19,8 @@ def add_parser(sub) -> None:
         ),
     )
     p.add_argument("--out", default="results/demo", metavar="DIR", help="output folder (default results/demo)")
-    p.add_argument("--quick", action="store_true", help="a quick run: short simulations under a 1 %% standard-error target, 3 budgets, one optimiser start")
+    p.add_argument("--quick", action="store_true",
+                   help="a quick run: short simulations under a 1 %% standard-error target, 3 budgets, one start")
     p.add_argument("--json", action="store_true", help="print the run record as JSON at the end")
     p.set_defaults(func=run)
 
