@@ -56,8 +56,8 @@ def test_cdf_integral_derivatives_against_mpmath():
     for x in (0.1, 0.7, 2.0):
         for w in (1e-8, 5e-4, 2e-3, 0.3, 3.0):
             gx, gw = (float(v) for v in grad(x, w))
-            assert gx == pytest.approx(float(mp.diff(lambda v: h(v, w), x)), rel=1e-10)
-            assert gw == pytest.approx(float(mp.diff(lambda v: h(x, v), w)), rel=1e-9)
+            assert gx == pytest.approx(float(mp.diff(lambda v, w=w: h(v, w), x)), rel=1e-10)
+            assert gw == pytest.approx(float(mp.diff(lambda v, x=x: h(x, v), w)), rel=1e-9)
     # and the k = 0 gradient of a pulsed slot is finite in every argument
     g = jax.grad(lambda a: pulses._pulse_cdf(jnp.asarray([0.3]), 0.05, a[0], a[1], a[2], a[3])[0])(
         jnp.asarray([R, GAP, D, 0.0]))
@@ -106,7 +106,7 @@ def test_shadowed_pulse_two_spheres_average_the_impulse_model():
 
     t = 2 * ts
     for j in range(2):
-        ref = quad(lambda tau: impulse_cdf(t - tau, j), 0.0, pulse, epsabs=0.0, epsrel=1e-10)[0] / pulse
+        ref = quad(lambda tau, j=j: impulse_cdf(t - tau, j), 0.0, pulse, epsabs=0.0, epsrel=1e-10)[0] / pulse
         assert float(np.asarray(h2)[0, j].sum()) == pytest.approx(ref, rel=1e-8)
 
 

@@ -233,7 +233,8 @@ def _check_walls(s: Scenario) -> None:
     fix_n = "give the direction into the fluid, e.g. normal = [0, 1, 0]"
     normals = []
     for w, wall in enumerate(walls):
-        _point(f"wall[{w}].point", wall.point, 'give [x, y, z] in metres or as strings such as ["0 um", "-20 um", "0 um"]')
+        _point(f"wall[{w}].point", wall.point,
+               'give [x, y, z] in metres or as strings such as ["0 um", "-20 um", "0 um"]')
         n = wall.normal
         if not isinstance(n, (tuple, list, np.ndarray)) or len(n) != 3:
             raise InputError(f"wall[{w}].normal", n, "must be a list of 3 numbers [nx, ny, nz]", fix_n)
@@ -269,8 +270,9 @@ def _check_walls(s: Scenario) -> None:
         for j, r in enumerate(s.receivers):
             height = float(np.dot(np.asarray(r.centre, dtype=float) - p, n))
             if height <= 0.0:
+                where = "on" if height == 0.0 else um(-height) + " behind"
                 raise InputError(f"receiver[{j}].centre", r.centre,
-                                 f'receiver[{j}] "{r.name}" has its centre {"on" if height == 0.0 else um(-height) + " behind"} '
+                                 f'receiver[{j}] "{r.name}" has its centre {where} '
                                  f"wall[{w}] (the fluid is on the side its normal {wall.normal} points to)",
                                  "move the receiver into the fluid, or flip the wall's normal")
             if height <= float(r.radius):
