@@ -84,3 +84,20 @@ def test_a_breach_that_cannot_be_mended_names_the_layout():
             channel_response(s, "lone")
     finally:
         module.MODELS["lone"] = real
+
+
+def test_the_design_objective_refuses_a_response_that_breaks_the_invariants():
+    """The same near-bead layout inside the optimiser: the shadowed model's impossible numbers never steer it (the
+    reference for 'impossible': probabilities in [0, 1], captures <= 1, which the particle simulator holds)."""
+    from capacity import load_scenario
+    from capacity.design.objectives import Objective
+    from capacity.design.optimise import build_problem
+    from capacity.design.params import unconstrain
+    from capacity.scenario.types import Emitter
+
+    s = load_scenario("demo")
+    s = s.replace(emitters=(Emitter("sender-west", (6.9e-6, 2e-6, 0.0)),) + s.emitters[1:]).with_channel(memory=24)
+    problem = build_problem(s, ("symbol_interval",), "bits-per-second", rate="mean-isi", min_gap=5e-8)
+    obj = Objective(problem)
+    with pytest.raises(InputError, match=r"design.*shadowed response model gives"):
+        obj.evaluate(unconstrain(problem.space, {"symbol_interval": 0.2}))

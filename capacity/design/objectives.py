@@ -377,6 +377,20 @@ class Objective:
         law = np.maximum(law, 0.0)
         return law / law.sum(), float(res.slope), float(res.gap)
 
+    def _guard(self, u, arrays) -> None:
+        """The response invariants of :func:`capacity.physics.response.broken_invariants` at this design: a
+        response model outside its range (an emitter very close to a bead) never steers the optimiser."""
+        from capacity.physics.response import ROUND_OFF, broken_invariants
+
+        hits, tail = np.asarray(arrays[0]), np.asarray(arrays[1])
+        problems = broken_invariants(hits, tail, np.asarray(self.problem.space.passive),
+                                     shared=self.problem.model == "shadowed")
+        if problems:
+            raise InputError("design", {k: np.asarray(v).tolist() for k, v in u.items()},
+                             f"the {self.problem.model} response model gives {'; '.join(problems)} here (beyond "
+                             f"round-off {ROUND_OFF:g})",
+                             "bound the geometric tunables (bounds=...) so emitters stay further from the beads")
+
     def evaluate(self, u: dict, *, grad: bool = False) -> Evaluation:
         """Objective at unconstrained parameters ``u`` (dict of arrays); with ``grad``, d objective / d u too."""
         self.evaluations += 1
@@ -386,6 +400,7 @@ class Objective:
                              "puts an emitter inside a receiver or two receivers closer than the minimum gap",
                              "bound the geometric tunables (bounds=...) or move the starting layout")
         arrays = self._forward(u)
+        self._guard(u, arrays)
         law, slope, gap = self._solve(arrays)
         self._law = law
         if self.problem.rate == "isi-window":
