@@ -257,3 +257,12 @@ def test_design_with_walls_refuses_geometry_tunables():
     with pytest.raises(InputError, match="no wall constraint") as err:
         build_problem(s, ["gap"], "bits-per-second")
     assert err.value.field == "tune"
+
+
+def test_lone_absorbing_in_a_channel_is_refused_with_a_pointer_to_shadowed():
+    # the lone image sum ignores the receiver's own images as absorbers: over 200 slots of a 15 um channel it counts
+    # more than every molecule (1.19), which the response layer refuses by name
+    s = _scenario([_wall(-7), _wall(8, [0, -1, 0])], memory=200)
+    with pytest.raises(InputError, match="shadowed") as err:
+        channel_response(s, "lone")
+    assert err.value.field == "layout" and "> 1" in str(err.value)

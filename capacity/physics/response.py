@@ -342,8 +342,11 @@ def channel_response(scenario, model=None, *, memory=None, particles=None, seed=
         name = "particles"
         problems = broken_invariants(hits, tail, lay.passive, shared=True)
     if problems:
-        raise InputError("layout", scenario.name, f"the {name} response model gives {'; '.join(problems)}",
-                         "move emitters further from the receivers, or use channel.response = 'particles'")
+        fix = "move emitters further from the receivers, or use channel.response = 'particles'"
+        if name == "lone" and lay.walls is not None:
+            fix = ("use channel.response = 'shadowed' or 'particles': with walls the lone model does not treat an "
+                   "absorbing receiver's own mirror images as absorbers, so near a wall or in a channel it over-counts")
+        raise InputError("layout", scenario.name, f"the {name} response model gives {'; '.join(problems)}", fix)
     hits, tail = np.clip(hits, 0.0, None), np.clip(tail, 0.0, None)  # round-off below ROUND_OFF only
     if name == "lone":
         over = _shared_totals(hits, tail, lay.passive)
