@@ -300,6 +300,7 @@ def _mix(prep, b, a: _Point, other_p: np.ndarray, other_cost: float, budget: flo
 def _budget_search(prep, b, budget, tol, max_iter, lo: _Point, hi: _Point | None, iterations: int):
     """Safeguarded Newton on mean_cost(s) = budget; lo has cost > budget (s_lo >= 0), hi has cost < budget."""
     scale = max(abs(budget), 1e-300)
+    s_floor = tol * LN2 / max(float(b.max() - b.min()), 1e-300)  # smaller slopes move the objective < tol
     ref = hi if hi is not None else lo
     deriv = float(ref.sol.cost_slope)
     s = ref.s - (ref.cost - budget) / deriv if deriv < 0 else ref.s + 1.0
@@ -311,8 +312,10 @@ def _budget_search(prep, b, budget, tol, max_iter, lo: _Point, hi: _Point | None
                 s = 0.5 * (lo.s + hi.s)
             if width <= 1e-14 * max(hi.s, 1e-300):
                 break
-        elif not (s > lo.s and np.isfinite(s)):
-            s = 2.0 * lo.s + 1.0
+        elif not (np.isfinite(s) and s > lo.s and s >= 1.5 * lo.s):
+            # no cheaper law yet and the Newton step crawls (where the optimal law is not unique the mean cost
+            # jumps with s and its derivative is useless): grow the slope geometrically until it brackets
+            s = max(4.0 * lo.s, s_floor)
         start = hi.p if hi is not None and abs(hi.s - s) < abs(lo.s - s) else lo.p
         point = _run(prep, b, s, start, tol, max_iter)
         iterations += int(point.sol.iterations)
