@@ -17,8 +17,9 @@ from capacity.errors import InputError
 
 #: validated ranges of the flow and reactive models (studies/validate_flow_walls.py, results/validation/)
 VALIDATED = {
-    "max_peclet": 10.0,  # |v| a / D of absorbing spheres, flow toward, away from and across
-    "max_peclet_reactive": 2.0,  # reactive spheres in a flow (the model leaves out the reflections' drift term)
+    "max_peclet": 8.5,  # |v| a / D of a lone absorbing sphere: flow toward, away from, across and oblique
+    "max_peclet_reactive": 1.7,  # reactive spheres in a flow (drift-coupled Robin series)
+    "max_peclet_renewal": 1.8,  # several absorbing beads, or a bead near a wall, in a flow (renewal model)
 }
 
 
@@ -100,9 +101,11 @@ def validity_notes(lay) -> list[str]:
         return notes
     rates = np.where(lay.passive, np.inf, np.asarray(lay.rates, dtype=float))
     pe = peclet_numbers(lay.radii, flow, lay.diffusion)
+    several = np.count_nonzero(~lay.passive) > 1 or getattr(lay, "walls", None) is not None
     for j in np.flatnonzero(~lay.passive):
         reactive = np.isfinite(rates[j])
-        limit = VALIDATED["max_peclet_reactive" if reactive else "max_peclet"]
+        limit = VALIDATED["max_peclet_reactive" if reactive else ("max_peclet_renewal" if several
+                                                                   else "max_peclet")]
         if pe[j] > MAX_PECLET:
             notes.append(f"receiver {lay.receiver_names[j]}: Peclet number {pe[j]:.3g} is above {MAX_PECLET:g}, "
                          "where the flow series loses precision; use the particles model")
