@@ -11,6 +11,7 @@ import pytest
 
 from capacity import load_scenario
 from capacity.scenario.magnitudes import magnitude_warnings
+from capacity.scenario.summary import scenario_warnings
 
 SCENARIO = """
 name = "slip check"
@@ -49,11 +50,11 @@ def test_a_plausible_layout_has_no_magnitude_warning(tmp_path):
         ({"interval": "7200"}, "channel.symbol_interval", ""),
         ({"interval": '"0.1 us"'}, "channel.symbol_interval", ""),
         ({"interval": "500"}, "channel.symbol_interval", '"500 ms"'),  # peak 0.107 s: a 500 s slot is empty
-        ({"interval": '"0.5 ms"'}, "channel.symbol_interval", "smeared"),  # 1/200 of the 0.107 s peak
+        ({"interval": '"0.5 ms"'}, "the signal from", "slots after release"),  # 1/200 of the 0.107 s peak
     ],
 )
 def test_implausible_values_are_named_with_their_si_reading(tmp_path, change, field, hint):
-    warnings = magnitude_warnings(load_scenario(_write(tmp_path, **change)))
+    warnings = scenario_warnings(load_scenario(_write(tmp_path, **change)))
     assert warnings and any(w.startswith(field) for w in warnings), warnings
     assert hint in " ".join(warnings)
 
