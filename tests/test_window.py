@@ -254,3 +254,23 @@ def test_bad_input_names_the_field(kwargs, field):
     with pytest.raises(InputError, match=f"^{field} ") as err:
         window_bound(HITS_A, BASE_A, SYM_A, law, **args)
     assert err.value.field == field
+
+
+def test_shared_sampler_draws_the_same_law():
+    # Poisson law (mean = variance = the window mean): the counts of draw_shared against their own means, pooled
+    # over samples, within 4 standard errors; and the symbols' frequencies against the law (binomial SE)
+    from capacity.information.window import _draw_symbols, draw_shared
+
+    key = jax.random.PRNGKey(5)
+    h, b, s, p = (jnp.asarray(v) for v in (HITS_A, BASE_A, SYM_A, LAW_A))
+    past, fut, y = draw_shared(key, h, b, s, p, memory_past=2, J=2, n=20_000)
+    k_sym, _ = jax.random.split(key)
+    _, _, mean = _draw_symbols(k_sym, h, b, s, p, memory_past=2, J=2, n=20_000)
+    y, mean = np.asarray(y).ravel(), np.asarray(mean).ravel()
+    z = (y - mean).sum() / np.sqrt(mean.sum())
+    assert abs(z) < 4
+    # second moment: E[(y - mu)^2 - mu] = 0 for a Poisson count
+    v = ((y - mean) ** 2 - mean)
+    assert abs(v.mean()) < 4 * v.std(ddof=1) / np.sqrt(v.size)
+    freq = np.bincount(np.asarray(past).ravel(), minlength=2) / np.asarray(past).size
+    assert abs(freq[1] - LAW_A[1]) < 4 * np.sqrt(LAW_A[1] * LAW_A[0] / np.asarray(past).size)

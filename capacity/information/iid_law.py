@@ -24,7 +24,7 @@ import numpy as np
 
 from capacity import _jax  # noqa: F401  (float64)
 from capacity.errors import InputError
-from capacity.information.window import auto_window, chunk_size, draw, surrogate
+from capacity.information.window import auto_window, chunk_size, draw_shared, surrogate
 
 LAW_FLOOR = 1e-9
 
@@ -99,7 +99,7 @@ def optimise_iid_law(hits, base, symbols, cost, budget, init_law, *, tail=None, 
     def evaluate(p):
         pj = jnp.asarray(p)
         bs = base_at(p)
-        smp = draw(key, h, bs, sym, pj, memory_past=L, J=J, n=int(n_samples))
+        smp = draw_shared(key, h, bs, sym, pj, memory_past=L, J=J, n=int(n_samples))
         val, grad = vg(pj, bs, smp)
         return float(val), np.asarray(grad)
 

@@ -102,12 +102,28 @@ def _log_window(y, known, now, fut, log_law, log_fut):
     return logsumexp(ll + log_fut[None, None, None, :], axis=-1)
 
 
+@partial(jax.jit, static_argnames=("memory_past", "J", "n"))
 def draw(key, hits, base, sym, law, *, memory_past: int, J: int, n: int):
     """Common random numbers for the estimator: past (n, L) symbols, future (n, S, J) symbols, and the window
     counts y (n, S, J+1, R) drawn from the true channel for each current symbol s.
 
-    The counts come from :func:`capacity.information.trellis.poisson_counts`, whose sampler is compiled once for
-    a fixed block size (a Poisson sampler compiled for each shape cost 5-15 s per new shape)."""
+    The Poisson sampler is compiled inside, once per shape (the design objective draws one shape per problem);
+    :func:`draw_shared` gives the same law with a sampler compiled once per process."""
+    h, b, x = (jnp.asarray(v, dtype=jnp.float64) for v in (hits, base, sym))
+    S = x.shape[0]
+    k_past, k_fut, k_y = jax.random.split(key, 3)
+    logits = jnp.log(jnp.asarray(law, dtype=jnp.float64))
+    past = jax.random.categorical(k_past, logits, shape=(n, memory_past))
+    fut = jax.random.categorical(k_fut, logits, shape=(n, S, J))
+    mean = true_means(h, b, x, past, fut, J)
+    y = jax.random.poisson(k_y, mean, shape=mean.shape).astype(jnp.float64)
+    return past, fut, y
+
+
+def draw_shared(key, hits, base, sym, law, *, memory_past: int, J: int, n: int):
+    """As :func:`draw` (same law, another random stream), with the counts from
+    :func:`capacity.information.trellis.poisson_counts`, whose sampler is compiled once for a fixed block size: a
+    Poisson sampler compiled per shape cost 2-15 s for every new (n, J, L) on the 2-core build machine."""
     k_sym, k_y = jax.random.split(key)
     past, fut, mean = _draw_symbols(k_sym, hits, base, sym, law, memory_past=memory_past, J=J, n=n)
     return past, fut, poisson_counts(k_y, mean)
@@ -212,7 +228,7 @@ def window_bound(hits, background, symbols, input_law, *, interference=None, win
     R = h.shape[1]
     chunk = chunk_size(S, J, R)
     args = [jnp.asarray(v) for v in (h, base, sym, law)]
-    past, fut, y = draw(jax.random.PRNGKey(int(seed)), *args, memory_past=L, J=J, n=n)
+    past, fut, y = draw_shared(jax.random.PRNGKey(int(seed)), *args, memory_past=L, J=J, n=n)
     g, _ = window_terms(*args, past, fut, y, J=J, chunk=chunk)
     G = np.asarray(g) @ law / LN2
     se = float(G.std(ddof=1) / np.sqrt(n))
