@@ -59,13 +59,18 @@ def run(args) -> int:
     from capacity.sweep.run import run_sweep
     from capacity.sweep.spec import make_spec
 
+    if args.scheduler:  # an unreachable cluster is named at once, before the slower checks below
+        from capacity.sweep.engine import open_cluster
+
+        with open_cluster(scheduler=args.scheduler):
+            pass
     quiet = args.quiet or args.json
-    load(args.scenario, strict=getattr(args, "strict", False), announce=not quiet)  # the base scenario's warnings
     settings = {"symbols": args.symbols, "runs": args.runs, "bound_samples": args.bound_samples,
                 "window_samples": args.window_samples, "model": args.model, "schemes": args.schemes,
                 "law_search": False if args.no_law_search else None}
     spec = make_spec(args.scenario, args.vary, measure=args.measure, settings=settings, seed=args.seed,
                      force=args.force)
+    load(args.scenario, strict=getattr(args, "strict", False), announce=not quiet)  # the base scenario's warnings
 
     def log(text):
         if not quiet:

@@ -25,7 +25,7 @@ WORKER_ENV = {
     "JAX_ENABLE_X64": "1",
 }
 #: seconds to wait for a scheduler given with ``--scheduler``
-CONNECT_TIMEOUT = 5.0
+CONNECT_TIMEOUT = 3.0
 _ADDRESS = re.compile(r"^(tcp|tls|inproc|ucx|ws|wss)://[^\s:/]+(:\d+)?$|^[^\s:/]+:\d+$")
 
 

@@ -212,8 +212,9 @@ def grid_points(data: dict, axes: list[Axis], *, measure: str, settings: dict, b
             scenario = scenario_from_dict(table, source=source)
         except InputError as exc:
             where = ", ".join(f"{ax.field.path}={ax.coordinate(v)}" for ax, v in zip(axes, values, strict=True))
-            raise InputError(option, where, f"gives an invalid scenario: {exc}",
-                             "narrow the range so that every point is a valid layout") from None
+            raise InputError(option, where, f"gives an invalid scenario: {exc.field} = {exc.value!r}: {exc.problem}",
+                             (exc.fix + "; or " if exc.fix else "") + "narrow the grid so that every point is "
+                             "valid") from None
         pid = point_id(scenario, measure, settings)
         points.append(Point(index, values, scenario, pid, point_seed(base_seed, pid)))
     return points
