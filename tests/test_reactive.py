@@ -203,3 +203,23 @@ def test_cli_negative_reaction_rate_exits_2(tmp_path):
                           text=True, timeout=120)
     assert proc.returncode == 2
     assert "reaction_rate" in proc.stderr and "Traceback" not in proc.stderr
+
+
+def test_erfcx_is_safe_where_jax_returns_zero():
+    # jax.scipy.special.erfcx (jax 0.10.2, float64) returns exactly 0 on [26.5433, 26.6417]; the reactive closed
+    # form uses its own erfcx there (scipy as the outside reference), and a slot whose xi + eta falls in that band
+    # stays equal to the mpmath inversion
+    from scipy.special import erfcx
+
+    from capacity.physics.reactive import _erfcx
+
+    x = np.concatenate([np.linspace(0.0, 40.0, 40001), np.geomspace(40.0, 1e8, 200)])
+    np.testing.assert_allclose(np.asarray(_erfcx(x)), erfcx(x), rtol=1e-14)
+    # D = 1e-10, a = 4 um, kappa = 60 um/s: beta = 8.5 1/sqrt(s), so xi + eta = 26.57 .. 26.62 at t = 9.58 .. 9.62 s
+    mp.mp.dps = 30
+    a, d, dcoef, k, kappa = 4e-6, 16e-6, 1e-10, 0.5, 6e-5
+    f = _transform(a, d, dcoef, k, kappa)
+    f0 = f(0)
+    for t in (9.58, 9.60, 9.62):
+        late = mp.invertlaplace(lambda s: (f0 - f(s)) / s, t, method="talbot")
+        assert float(reactive_survival(t, a, d, dcoef, k, kappa)) == pytest.approx(float(late), rel=1e-8)
