@@ -53,7 +53,6 @@ from scipy import special
 from capacity import _jax  # noqa: F401  (float64)
 from capacity._inputs import real_array, real_number, whole_number
 from capacity.errors import InputError
-from capacity.information import _accelerated as accelerated
 from capacity.information import _active_set as active_set
 from capacity.information import _ba_kernel as kernel
 from capacity.information.result import CapacityResult
@@ -61,8 +60,6 @@ from capacity.information.result import CapacityResult
 __all__ = ["blahut_arimoto", "capacity_cost_curve", "mutual_information"]
 
 LN2 = math.log(2.0)
-QUICK_EVALS = 60  # evaluations of the NumPy extrapolated iteration before the compiled Newton solver takes over
-QUICK_MIX = 0.01  # weight of the start law in the compiled solver's warm start after a quick attempt
 ACTIVE_SET_ABOVE = 64  # more inputs than this: working sets (``_active_set``) instead of one S x S Newton solve
 
 
@@ -228,33 +225,10 @@ def _run(prep: _Prepared, b: np.ndarray, s: float, p0: np.ndarray, tol: float, m
     if prep.large:  # large alphabet: working sets, certificate over all inputs
         sol = active_set.solve(prep.w_np, prep.negent_np, b, float(s), p0, tol * LN2, max_iter)
         return _Point(float(s), sol.p, sol, float(sol.p @ b))
-    quick = accelerated.solve(prep.kept, prep.negent_np, b, float(s), p0, tol * LN2, min(QUICK_EVALS, max_iter),
-                              overflow=prep.overflow)
-    if quick.converged:  # certified without the compiled solver
-        ev = kernel.Evaluation(quick.d, quick.q, quick.info, quick.objective, quick.gap)
-        slope = _cost_slope(quick.p, prep.w_np, b) if np.any(b > 0) else 0.0
-        sol = kernel.Solution(quick.p, ev, np.asarray(quick.evaluations), np.asarray(0), np.asarray(False),
-                              np.asarray(slope))
-        return _Point(float(s), quick.p, sol, float(quick.p @ b))
-    start = (1.0 - QUICK_MIX) * quick.p + QUICK_MIX * p0  # warm start (inputs heading to 0 keep some mass)
     sol = kernel.solve(prep.w, prep.negent, _pad(b, prep), jnp.asarray(s, dtype=jnp.float64), prep.valid,
-                       _pad(start, prep), jnp.asarray(tol * LN2), jnp.asarray(max_iter))
+                       _pad(p0, prep), jnp.asarray(tol * LN2), jnp.asarray(max_iter))
     p = np.asarray(sol.p)[: prep.n_sym]
-    sol = sol._replace(iterations=sol.iterations + quick.evaluations)
     return _Point(float(s), p, sol, float(p @ b))
-
-
-def _cost_slope(p, w, b, support_threshold=1e-12) -> float:
-    """d(mean cost)/ds at an optimum, NumPy twin of ``_ba_kernel._cost_derivative`` (implicit function theorem
-    on the KKT system on the support: [H -1; 1^T 0][dp; dnu] = [b; 0], dP/ds = b . dp <= 0)."""
-    on = p > support_threshold * p.max()
-    q = p @ w
-    wn = w[on] / np.sqrt(np.maximum(q, kernel.TINY))[None, :]
-    n_mat = wn @ wn.T  # -H on the support
-    n_mat = n_mat + 1e-12 * np.max(np.abs(np.diag(n_mat))) * np.eye(len(n_mat))
-    u_c, u_a = np.linalg.solve(n_mat, np.stack([-b[on], np.ones(on.sum())], axis=1)).T
-    dp = u_c - (u_c.sum() / u_a.sum()) * u_a
-    return float(b[on] @ dp)
 
 
 def _pad(v: np.ndarray, prep: _Prepared) -> jax.Array:
