@@ -29,6 +29,14 @@ FIELDS = ("scenario", "symbol_interval", "memory", "information_rate", "stderr",
           "bits_per_second", "stderr_bits_per_second", "mean_molecules", "bits_per_molecule", "seconds")
 
 
+def _finished(path: Path) -> list[dict]:
+    if not path.exists():
+        return []
+    with open(path) as fh:
+        return [{k: (v if k == "scenario" else (int(v) if k == "memory" else float(v))) for k, v in row.items()}
+                for row in csv.DictReader(fh)]
+
+
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quick", action="store_true")
@@ -43,12 +51,17 @@ def main(argv=None) -> int:
     n_symbols, n_runs = (1000, 2) if args.quick else (3000, 4)
     out = Path(args.out)
     out.mkdir(parents=True, exist_ok=True)
-    rows = []
+    rows = _finished(out / "sweep.csv")  # a re-run keeps the finished points
+    done = {(r["scenario"], r["symbol_interval"]) for r in rows}
     with open(out / "sweep.csv", "w", newline="") as fh:
         writer = csv.DictWriter(fh, fieldnames=FIELDS)
         writer.writeheader()
+        for row in rows:
+            writer.writerow(row)
         for label, base in (("flow", flow), ("still", still)):
             for ts in grid:
+                if (label, ts) in done:
+                    continue
                 t0 = time.time()
                 sc = base.with_channel(symbol_interval=float(ts))
                 response = channel_response(sc)
