@@ -107,7 +107,8 @@ class _Prepared(NamedTuple):
     valid = property(lambda self: self._device("valid"))  # (S',) True for real symbols
 
 
-def _matrix_of(transition) -> tuple[np.ndarray, np.ndarray]:
+def _matrix_of(transition) -> tuple[np.ndarray, np.ndarray, np.ndarray | None]:
+    """(W, truncated mass per row, the Transition's ln W when it has one of the same shape, else None)."""
     if hasattr(transition, "matrix") and hasattr(transition, "truncated_mass"):
         w = real_array(transition.matrix, "transition", "pass a Transition with a real matrix")
     else:
