@@ -206,12 +206,12 @@ def test_cli_negative_reaction_rate_exits_2(tmp_path):
 
 
 def test_erfcx_is_safe_where_jax_returns_zero():
-    # jax.scipy.special.erfcx (jax 0.10.2, float64) returns exactly 0 on [26.5433, 26.6417]; the reactive closed
-    # form uses its own erfcx there (scipy as the outside reference), and a slot whose xi + eta falls in that band
-    # stays equal to the mpmath inversion
+    # jax.scipy.special.erfcx (jax 0.10.2, float64) returns exactly 0 on [26.5433, 26.6417]; the closed forms use
+    # the guarded erfcx of capacity.physics._special (scipy as the outside reference), and a slot whose xi + eta
+    # falls in that band stays equal to the mpmath inversion
     from scipy.special import erfcx
 
-    from capacity.physics.reactive import _erfcx
+    from capacity.physics._special import erfcx as _erfcx
 
     x = np.concatenate([np.linspace(0.0, 40.0, 40001), np.geomspace(40.0, 1e8, 200)])
     np.testing.assert_allclose(np.asarray(_erfcx(x)), erfcx(x), rtol=1e-14)

@@ -39,9 +39,10 @@ from functools import partial
 import jax
 import jax.numpy as jnp
 import numpy as np
-from jax.scipy.special import erf, erfc, erfcx
+from jax.scipy.special import erf, erfc
 
 from capacity import _jax  # noqa: F401  (float64)
+from capacity.physics._special import erfcx
 
 _TWO_OVER_SQRT_PI = 2.0 / math.sqrt(math.pi)
 #: below this sigma = sqrt(k t) the divided difference beta uses its Taylor series (error ~ sigma^6 / 5040)

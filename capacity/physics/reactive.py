@@ -39,9 +39,10 @@ from functools import partial
 
 import jax
 import jax.numpy as jnp
-from jax.scipy.special import erf, erfc, erfcx
+from jax.scipy.special import erf, erfc
 
 from capacity import _jax  # noqa: F401  (float64)
+from capacity.physics._special import erfcx
 
 _TWO_OVER_SQRT_PI = 2.0 / math.sqrt(math.pi)
 #: below this step the divided difference of erfcx uses its Taylor series about the midpoint (error ~ h^6)
@@ -50,22 +51,6 @@ _DD_SERIES = 1e-3
 _XI_AT_ZERO = 1e3
 
 
-#: above this argument erfcx comes from its asymptotic series (jax.scipy.special.erfcx 0.10.2 returns exactly 0 on
-#: [26.5433, 26.6417] in float64, measured against scipy)
-_ERFCX_ASYMPTOTIC = 12.0
-
-
-def _erfcx(x):
-    """erfcx(x) for real x: JAX's below :data:`_ERFCX_ASYMPTOTIC`, else the asymptotic series
-    ``1/(sqrt(pi) x) sum_n (-1)^n (2n-1)!! / (2 x^2)^n`` to n = 16 (next term < 1e-21 relative at x >= 12)."""
-    big = x > _ERFCX_ASYMPTOTIC
-    xb = jnp.where(big, x, _ERFCX_ASYMPTOTIC + 1.0)
-    u = 1.0 / (2.0 * xb * xb)
-    series, term = jnp.ones_like(xb), jnp.ones_like(xb)
-    for n in range(1, 17):
-        term = -term * (2 * n - 1) * u
-        series = series + term
-    return jnp.where(big, series / (math.sqrt(math.pi) * xb), erfcx(jnp.where(big, 0.0, x)))
 
 
 def _erfcx_divided_difference(y1, y2):
@@ -76,9 +61,9 @@ def _erfcx_divided_difference(y1, y2):
     """
     h = y2 - y1
     close = jnp.abs(h) < _DD_SERIES
-    direct = (_erfcx(y2) - _erfcx(y1)) / jnp.where(close, 1.0, h)
+    direct = (erfcx(y2) - erfcx(y1)) / jnp.where(close, 1.0, h)
     m = 0.5 * (y1 + y2)
-    e0 = _erfcx(m)
+    e0 = erfcx(m)
     e1 = 2.0 * m * e0 - _TWO_OVER_SQRT_PI
     e2 = 2.0 * m * e1 + 2.0 * e0
     e3 = 2.0 * m * e2 + 4.0 * e1
@@ -113,16 +98,16 @@ def _cdf_and_survival(t, radius, gap, diffusion, degradation, rate):
     f_early = -amp * half_t * e * (dd_minus + dd_plus)
     # F for xi < sigma: the first term as exp(-2 xi sigma) erfc(xi - sigma) (erfc of a negative argument <= 2)
     first = jnp.exp(-2.0 * xi * sigma) * erfc(xi - sigma) / (2.0 * (beta + root_k))
-    rest = e * (_erfcx(xi + eta) / (2.0 * (beta + root_k)) + half_t * dd_plus)
+    rest = e * (erfcx(xi + eta) / (2.0 * (beta + root_k)) + half_t * dd_plus)
     f_late = amp * (first - rest)
     cdf = jnp.where(early, f_early, f_late)
     # part still to come: P [exp(-2 xi sigma) erfc(sigma - xi) / (2 (beta + sqrt k)) + rest], each term >= 0
     # (erfc(sigma - xi) = 1 + erf(xi - sigma) = 2 - erfc(xi - sigma); for xi < sigma via erfcx, no overflow)
     lead = jnp.where(early, jnp.exp(-2.0 * xi * sigma) * (1.0 + erf(xi - sigma)),
-                     e * _erfcx(jnp.where(early, 0.0, sigma - xi)))
+                     e * erfcx(jnp.where(early, 0.0, sigma - xi)))
     survival = amp * (lead / (2.0 * (beta + root_k)) + rest)
     # k = 0: the cancellation-free form P/beta [erf(xi) + e erfcx(xi + eta)]
-    survival = jnp.where(degradation == 0.0, amp / beta * (erf(xi) + e * _erfcx(xi + eta)), survival)
+    survival = jnp.where(degradation == 0.0, amp / beta * (erf(xi) + e * erfcx(xi + eta)), survival)
     total = reactive_total(radius, gap, diffusion, degradation, rate)
     return jnp.where(pos, cdf, 0.0), jnp.where(pos, survival, total)
 
@@ -176,7 +161,7 @@ def reactive_density(t, radius, gap, diffusion, degradation, rate):
     pos, xi, _, eta, beta, _, amp, tt = _variables(t, radius, gap, diffusion, degradation, rate)
     ts = jnp.where(pos, tt, 1.0)
     e = jnp.exp(-xi * xi - degradation * tt)
-    f = amp * e * (1.0 / jnp.sqrt(jnp.pi * ts) - beta * _erfcx(xi + eta))
+    f = amp * e * (1.0 / jnp.sqrt(jnp.pi * ts) - beta * erfcx(xi + eta))
     return jnp.where(pos, f, 0.0)
 
 
