@@ -22,6 +22,7 @@
 from __future__ import annotations
 
 import math
+import sys
 import time
 from typing import Callable, NamedTuple
 
@@ -404,7 +405,9 @@ def optimise_design(scenario, tune, objective: str, *, rate: str = "auto", start
     if progress:
         from tqdm.auto import tqdm
 
-        bar = tqdm(total=starts * steps, desc=f"optimise {objective}", unit="step", leave=False)
+        # on stderr, and only when it is a terminal (a log file gets no bar)
+        bar = tqdm(total=starts * steps, desc=f"optimise {objective}", unit="step", leave=False, file=sys.stderr,
+                   disable=not sys.stderr.isatty())
     results, history = [], []
     try:
         for k, u0 in enumerate(_start_points(space, starts, seed)):

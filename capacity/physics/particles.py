@@ -456,8 +456,10 @@ def _pow2_at_least(n: int) -> int:
 
 
 def _progress_bar(show: bool, total: int):
-    if not show:
+    import sys
+
+    if not show or not sys.stderr.isatty():  # a bar only on a terminal
         return None
     from tqdm.auto import tqdm
 
-    return tqdm(total=total, unit="molecule", desc="particles")
+    return tqdm(total=total, unit="molecule", desc="particles", file=sys.stderr)
