@@ -101,3 +101,20 @@ def test_the_design_objective_refuses_a_response_that_breaks_the_invariants():
     obj = Objective(problem)
     with pytest.raises(InputError, match=r"design.*shadowed response model gives"):
         obj.evaluate(unconstrain(problem.space, {"symbol_interval": 0.2}))
+
+
+def test_shadowed_model_is_not_used_closer_than_its_measured_range():
+    # studies/validate_near_bead.py (particles as the reference): at a gap of 0.05 radius (0.25 um) the shadowed
+    # model breaks no invariant but puts 3.5 times too much on the far bead, at 0.1 radius it holds; the response
+    # layer uses the particle simulator below 0.1 radius and the shadowed model from there on
+    from capacity.physics.response import NEAR_BEAD, layout_arrays
+    from capacity.physics.response import near_bead as rule
+
+    assert rule(layout_arrays(near_bead(0.25))) is not None and rule(layout_arrays(near_bead(0.5))) is None
+    assert NEAR_BEAD == 0.1
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        close = channel_response(near_bead(0.25).with_channel(memory=3))
+        fine = channel_response(near_bead(0.5).with_channel(memory=3))
+    assert close.model == "particles" and any("outside its measured range" in n for n in close.notes)
+    assert fine.model == "shadowed"
