@@ -339,3 +339,19 @@ def test_budget_search_brackets_the_slope_when_the_cost_jumps():
             best = max(best, -sq.fun)
     assert best <= res.capacity + res.gap + 1e-9  # the certificate holds against an independent optimiser
     assert res.capacity >= best - 1e-9
+
+
+@pytest.mark.parametrize("n_sym", [5, 300])
+def test_budget_on_a_useless_channel_returns_capacity_zero_at_once(n_sym):
+    # fuzz case blahut_arimoto:1054392431 (300 rows, one output, a budget): ran past 60 s. Every row is the same
+    # law (up to round-off), so Y is independent of X and I(X;Y) = 0 for every input law (Cover & Thomas, Thm 2.6.5)
+    rng = np.random.default_rng(1054392431)
+    w = rng.dirichlet(np.full(3, 0.3), size=1).repeat(n_sym, axis=0) * (1 - rng.uniform(0, 1e-16, (n_sym, 1)))
+    cost = rng.uniform(0, 10, n_sym)
+    budget = float(cost.min() + 0.3 * (cost.mean() - cost.min()))
+    start = time.perf_counter()
+    res = blahut_arimoto(w, cost=cost, budget=budget)
+    assert time.perf_counter() - start < 20.0
+    assert res.converged, res.message
+    assert 0.0 <= res.capacity <= 1e-12 and res.gap <= 1e-9
+    assert res.mean_cost <= budget * (1 + 1e-9)

@@ -165,7 +165,7 @@ def _poisson_upper(q: float, m: np.ndarray) -> np.ndarray:
         # grid is far past any max_outputs, so the bound itself is returned and the grid check refuses it
         lo = np.where(hi > 2.0**52, hi - 1.0, lo)
         while np.any(hi - lo > 1.0):
-            mid = np.floor(0.5 * (lo + hi))
+            mid = np.floor(lo + 0.5 * (hi - lo))  # (lo + hi) / 2 would overflow for bounds near 1e308
             ok = stats.poisson.sf(mid, mu) <= q
             hi = np.where(ok, mid, hi)
             lo = np.where(ok, lo, mid)

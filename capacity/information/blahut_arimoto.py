@@ -222,7 +222,23 @@ class _Point(NamedTuple):
     cost: float
 
 
+def _useless(prep: _Prepared) -> bool:
+    """True when every input has the same output law up to round-off: I(p) ~ 0 for every p (capacity ~0 at any
+    cost). The certificate is still evaluated on the given matrix, so the reported gap stays a valid bound."""
+    if "useless" not in prep.cache:
+        spread = np.ptp(prep.kept, axis=0).max()
+        if prep.overflow is not None:
+            spread = max(spread, np.ptp(prep.overflow))
+        prep.cache["useless"] = bool(spread <= 1e-15)
+    return prep.cache["useless"]
+
+
 def _run(prep: _Prepared, b: np.ndarray, s: float, p0: np.ndarray, tol: float, max_iter: int) -> _Point:
+    if _useless(prep):  # the objective -s P is linear: the start law at s = 0, else the cheapest symbol (gap 0)
+        p = p0 if s == 0 else (np.arange(prep.n_sym) == int(np.argmin(b))).astype(float)
+        ev = active_set.evaluate(p, prep.w_np, prep.negent_np, b, float(s))
+        sol = kernel.Solution(_pad(p, prep), ev, np.asarray(0), np.asarray(0), np.asarray(False), np.asarray(0.0))
+        return _Point(float(s), p, sol, float(p @ b))
     if prep.large:  # large alphabet: working sets, certificate over all inputs
         sol = active_set.solve(prep.w_np, prep.negent_np, b, float(s), p0, tol * LN2, max_iter)
         return _Point(float(s), sol.p, sol, float(sol.p @ b))
@@ -257,7 +273,8 @@ def _result(prep, point: _Point, b, tol, iterations, extra="", slope_bits=None) 
                 f"({prep.n_outputs - 1} of {prep.n_given} outputs kept, plus one overflow output)")
     msg += extra
     slope = point.s / LN2 if slope_bits is None else slope_bits
-    return CapacityResult(float(sol.ev.info) / LN2, point.p, gap_bits + prep.tail_bits, point.cost, its,
+    # I >= 0 always: a round-off negative value (useless channels) is reported as 0, still a valid lower bound
+    return CapacityResult(max(float(sol.ev.info) / LN2, 0.0), point.p, gap_bits + prep.tail_bits, point.cost, its,
                           converged, msg, float(slope))
 
 
