@@ -56,7 +56,7 @@ class Effort(NamedTuple):
 
 EFFORTS = {
     "quick": Effort(n_symbols=2_500, n_runs=8, max_states=4096, trellis_seconds=2.0, window_samples=1024,
-                    bound_samples=5_000, law_samples=1024, law_iterations=10, precision=0.005, max_rounds=8),
+                    bound_samples=2_000, law_samples=512, law_iterations=6, precision=0.005, max_rounds=8),
     "full": Effort(),
 }
 
