@@ -34,6 +34,10 @@ studies: $(STAMP)
 	$(BIN)/python studies/best_symbol_interval.py
 	$(BIN)/python studies/schemes_vs_budget.py
 	$(BIN)/python studies/layout_sweep.py
+	$(BIN)/python studies/validate_near_bead.py
+	$(BIN)/python studies/validate_walls.py
+	$(BIN)/python studies/validate_flow_walls.py --particles 200000
+	$(BIN)/python studies/flow_symbol_interval.py --quick
 
 lint: $(STAMP)
 	$(BIN)/ruff check .
