@@ -4,7 +4,8 @@ The demo layout's two beads (radius 5 um, centres (12, 2, 0) and (12, 22, 0) um,
 symbol interval 200 ms) with one emitter on the line towards the near bead's centre, at a surface gap of
 0.01, 0.02, 0.05, 0.1, 0.2 and 0.5 bead radii. For each gap: the raw shadowed model (``shadowed_hits``), whether
 ``channel_response``'s guard would fall back to the particle simulator (``broken_invariants``: a probability
-outside [0, 1] or a capture total above 1), and the particle simulator as the reference. The model "holds" at a
+outside [0, 1] or a capture total above 1), whether its near-bead rule does (``NEAR_BEAD``, set from this study),
+which model the response layer therefore uses, and the particle simulator as the reference. The model "holds" at a
 gap when both beads' totals over the kept slots are within 10 % of the particles' (or, for a total too small for
 the particle count to resolve to 10 %, within 2 standard errors), every slot within 0.005, and no invariant breaks.
 
@@ -24,7 +25,7 @@ import numpy as np
 
 import capacity  # noqa: F401  (float64)
 from capacity.physics import particles as particle_model
-from capacity.physics.response import broken_invariants
+from capacity.physics.response import NEAR_BEAD, broken_invariants
 from capacity.physics.shadowed import shadowed_hits
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
@@ -52,6 +53,8 @@ def run(out: Path, particles: int, memory: int, seed: int) -> list[dict]:
         model, model_tail = (np.asarray(a) for a in shadowed_hits(e, CENTRES, RADII, D, K, TS, memory))
         t_model = time.perf_counter() - t0
         problems = broken_invariants(model, model_tail, np.zeros(2, dtype=bool), shared=True)
+        # what channel_response does: the invariant guard, and the near-bead rule (0.1 radius) on top of it
+        rule = NEAR_BEAD > gap
         t0 = time.perf_counter()
         sim, _, se = (np.asarray(a) for a in particle_model.simulate_hits(
             e, CENTRES, RADII, np.zeros(2, dtype=bool), np.full(2, TS), D, K, TS, memory,
@@ -72,11 +75,14 @@ def run(out: Path, particles: int, memory: int, seed: int) -> list[dict]:
                    max_slot_abs_error=slot_err.max(),
                    max_slot_se=se.max(), model_min_slot=model.min(), model_capture_sum=float(tot_m.sum()
                                                                                             + model_tail.sum()),
-                   guard_falls_back=bool(problems), broken="; ".join(problems) or "-", model_holds=holds,
+                   guard_falls_back=bool(problems), near_bead_rule_falls_back=bool(rule),
+                   response_layer_uses="particles" if (problems or rule) else "shadowed",
+                   broken="; ".join(problems) or "-", model_holds=holds,
                    model_seconds=round(t_model, 2), particle_seconds=round(t_sim, 1))
         rows.append(row)
         print(f"gap {gap:5.2f} r: totals model {tot_m.round(4)} particles {tot_s.round(4)} (SE {tot_se.round(4)}),"
               f" rel {rel.round(3)}, slot err {slot_err.max():.4f}; guard falls back: {bool(problems)}; "
+              f"near-bead rule: {bool(rule)}; "
               f"holds: {holds} ({t_sim:.0f} s)", flush=True)
     out.mkdir(parents=True, exist_ok=True)
     with open(out / "near_bead.csv", "w", newline="") as fh:
