@@ -81,6 +81,7 @@ def test_response_json_keys_and_closed_form(small, tmp_path):
     data = json.loads(_run("response", str(small), "--json", "--plot", str(png)).stdout)
     for key in ("hits", "tail", "stderr", "model", "slot_edges", "emitters", "receivers"):
         assert key in data
+    assert data["schema"] == 2 and isinstance(data["units"], dict)
     hits = np.asarray(data["hits"])
     assert hits.shape == (1, 1, 3)
     # slot 0 equals F(Ts) = r/(r+d) erfc(d / sqrt(4 D Ts)) (Yilmaz et al., IEEE Commun. Lett. 2014)
@@ -92,7 +93,8 @@ def test_response_json_keys_and_closed_form(small, tmp_path):
 
 
 def test_rate_json_keys_and_ordering(small):
-    data = json.loads(_run("rate", str(small), "--json", "--symbols", "3000", "--runs", "4", "--markov").stdout)
+    data = json.loads(_run("rate", str(small), "--json", "--symbols", "3000", "--runs", "4", "--precision", "0.02",
+                           "--markov").stdout)
     for key in ("single_slot_capacity", "certified_gap", "input_distribution", "alphabet", "iid_input",
                 "information_rate", "stderr", "lower_bound", "upper_bound", "bounds", "bits_per_second",
                 "bits_per_molecule", "mean_molecules", "hits", "units"):
@@ -195,7 +197,8 @@ def test_compare_at_equal_budget_and_over_budgets(tmp_path):
     path.write_text(PAIR)
     out = tmp_path / "out"
     data = json.loads(_run("compare", str(path), "--schemes", "amplitude,spatial", "--budgets", "4:20:3",
-                           "--symbols", "1500", "--runs", "3", "--json", "--out", str(out)).stdout)
+                           "--symbols", "1500", "--runs", "3", "--precision", "0.02", "--json", "--out",
+                           str(out)).stdout)
     names = [s["scheme"] for s in data["schemes"]]
     assert names == ["amplitude", "spatial"]
     for s in data["schemes"]:

@@ -10,6 +10,7 @@ import jax
 import mpmath as mp
 import numpy as np
 import pytest
+from test_flow import _load  # the scenario-text loader shared with the flow tests
 
 from capacity.errors import InputError
 from capacity.physics.lone import absorbing_cdf
@@ -157,16 +158,6 @@ def _scenario(extra_receiver: str) -> str:
         response = "lone"
         """
     )
-
-
-def _load(text):
-    from capacity.scenario.load import scenario_from_dict
-
-    if sys.version_info >= (3, 11):
-        import tomllib
-    else:  # pragma: no cover
-        import tomli as tomllib
-    return scenario_from_dict(tomllib.loads(text))
 
 
 def test_reactive_scenario_goes_through_the_response_layer():
