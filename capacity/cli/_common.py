@@ -122,9 +122,7 @@ def effort_of(args):
     for option, value, low in (("--symbols", args.symbols, 1), ("--runs", args.runs, 2)):
         if value is not None and value < low:
             raise InputError(option, value, f"must be at least {low}", f"use e.g. {option} {max(low, 8)}")
-    if args.precision is not None and not (0 < args.precision < 1):
-        raise InputError("--precision", args.precision, "must be a relative standard error in (0, 1)",
-                         "use e.g. --precision 0.005 (0.5 %)")
+    # --precision is checked (under its option name) by capacity.effort.effort
     return effort("full" if args.full else "quick", n_symbols=args.symbols, n_runs=args.runs,
                   precision=args.precision, max_rounds=None if args.precision is None else 8)
 

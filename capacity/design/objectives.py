@@ -96,7 +96,8 @@ class Problem(NamedTuple):
     budget : mean molecules per symbol or None.  lags : lags enumerated by "isi-as-noise", or the look-ahead J
     of "isi-window" (static).  walls : :class:`capacity.physics.images.WallGeometry` or None; image_depth : image
     cells kept in a channel (static); pulses : (E,) release durations in s, or None for impulses.
-    transport : :class:`capacity.physics.transport.Transport` (surface reaction rates and uniform flow) or None for absorbing / passive receivers in a still fluid.
+    transport : :class:`capacity.physics.transport.Transport` (surface reaction rates and uniform flow) or None
+    for absorbing / passive receivers in a still fluid.
     """
 
     space: DesignSpace

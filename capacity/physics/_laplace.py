@@ -118,3 +118,12 @@ def solve_transforms(q, source, centres, radii, quad):
     kernels = coupling_kernels(q, source, centres, radii, quad)
     matrix = _cx(jnp.eye(num))[None] + jnp.transpose(kernels, (0, 2, 1))
     return jnp.linalg.solve(matrix, lone[..., None])[..., 0]
+
+
+def eventual_capture(source, centres, radii, diffusion, degradation, quad):
+    """(R,) eventual capture of one emitter's molecules by each sphere: the renewal equations at p = 0
+    (q = sqrt(k/D); a tiny floor stands in for k = 0)."""
+    floor = 1e-12 / jnp.max(radii)
+    k_pos = degradation > 0.0
+    q0 = jnp.where(k_pos, jnp.sqrt(jnp.where(k_pos, degradation, 1.0) / diffusion), floor)
+    return jnp.real(solve_transforms(q0[None].astype(jnp.complex128), source, centres, radii, quad))[0]

@@ -36,7 +36,7 @@ import numpy as np
 
 from capacity import _jax  # noqa: F401  (float64)
 from capacity.physics import lone as _lone
-from capacity.physics._laplace import solve_transforms, talbot_nodes
+from capacity.physics._laplace import eventual_capture, solve_transforms, talbot_nodes
 
 __all__ = ["absorbing_cdf_integral", "laplace_hits", "lone_pulse_hits", "shadowed_pulse_hits"]
 
@@ -209,11 +209,7 @@ def _one_emitter_laplace(source, pulse, centres, radii, diffusion, degradation, 
     else:
         cdf = _chunked(edges, chunk, values(1))
     hits = jnp.diff(jnp.concatenate([jnp.zeros((1, cdf.shape[1])), cdf], axis=0), axis=0).T
-    floor = 1e-12 / jnp.max(radii)
-    k_pos = degradation > 0.0
-    q0 = jnp.where(k_pos, jnp.sqrt(jnp.where(k_pos, degradation, 1.0) / diffusion), floor)
-    eventual = jnp.real(solve_transforms(q0[None].astype(jnp.complex128), source, centres, radii, quad))[0]
-    return hits, eventual - cdf[-1]
+    return hits, eventual_capture(source, centres, radii, diffusion, degradation, quad) - cdf[-1]
 
 
 @partial(jax.jit, static_argnames=("memory", "terms", "quad", "spread", "chunk"))

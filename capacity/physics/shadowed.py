@@ -46,7 +46,7 @@ import numpy as np
 
 from capacity import _jax  # noqa: F401  (float64)
 from capacity.errors import InputError
-from capacity.physics._laplace import solve_transforms, talbot_nodes
+from capacity.physics._laplace import eventual_capture, solve_transforms, talbot_nodes
 
 DEFAULT_TERMS = 24
 N_POLAR = 16
@@ -72,12 +72,8 @@ def _one_emitter_laplace(source, centres, radii, diffusion, degradation, symbol_
     cdf_terms = (transforms / p[:, None]).reshape(memory + 1, terms, -1)
     cdf = jnp.real(jnp.einsum("lm,lmj->lj", gamma, cdf_terms))  # (L+1, R)
     hits = jnp.diff(jnp.concatenate([jnp.zeros((1, cdf.shape[1])), cdf], axis=0), axis=0).T
-    # eventual capture: the same equations at p = 0 (q = sqrt(k/D); a tiny floor stands in for k = 0)
-    floor = 1e-12 / jnp.max(radii)
-    k_pos = degradation > 0.0
-    q0 = jnp.where(k_pos, jnp.sqrt(jnp.where(k_pos, degradation, 1.0) / diffusion), floor)
-    eventual = jnp.real(solve_transforms(q0[None].astype(jnp.complex128), source, centres, radii, quad))[0]
-    return hits, eventual - cdf[-1]
+    return hits, eventual_capture(source, centres, radii, diffusion, degradation, quad) - cdf[-1]
+
 
 
 @partial(jax.jit, static_argnames=("memory", "terms", "quad"))
