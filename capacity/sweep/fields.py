@@ -2,7 +2,9 @@
 
 A path names one entry of a scenario file: ``channel.symbol_interval``, ``signalling.budget``,
 ``medium.diffusion``, ``receiver[1].radius``, ``emitter[0].position`` (a whole point), ``receiver[0].centre[0]``
-(one coordinate: 0 = x, 1 = y, 2 = z) or ``receiver[*].radius`` (every receiver at once). Values are written into
+(one coordinate: 0 = x, 1 = y, 2 = z) or ``receiver[*].radius`` (every receiver at once). Vectors other than
+points: ``medium.flow`` (a velocity, ``medium.flow[0]`` its x component) and ``wall[0].normal`` (a direction,
+plain numbers); ``wall[1].point[2]`` moves a wall along z. Values are written into
 the scenario's TOML table, which the project's own loader then validates, so a value the loader refuses gives
 its usual message.
 """
@@ -17,15 +19,18 @@ from capacity.errors import InputError
 
 #: (table, key) -> kind of value. Kinds: a dimension of :mod:`capacity.units` (SI number), "number" (plain
 #: float), "int", "memory" (int or "auto"), "word" (an option name, checked by the loader), "bool", "emitter"
-#: (index or name), "point" (three lengths).
+#: (index or name), "point" (three lengths), "velocity_vector" (three velocities), "direction" (three numbers).
 KINDS: dict[tuple[str, str], str] = {
     ("medium", "diffusion"): "diffusion",
     ("medium", "degradation"): "rate",
+    ("medium", "flow"): "velocity_vector",
     ("emitter", "position"): "point",
+    ("emitter", "pulse"): "time",
     ("receiver", "centre"): "point",
     ("receiver", "radius"): "length",
     ("receiver", "kind"): "word",
     ("receiver", "sample_offset"): "time",
+    ("receiver", "reaction_rate"): "velocity",
     ("channel", "symbol_interval"): "time",
     ("channel", "memory"): "memory",
     ("channel", "memory_tolerance"): "number",
@@ -42,16 +47,23 @@ KINDS: dict[tuple[str, str], str] = {
     ("signalling", "budget"): "count",
     ("signalling", "emitter"): "emitter",
     ("signalling", "silent"): "bool",
+    ("wall", "point"): "point",
+    ("wall", "normal"): "direction",
+    ("wall", "kind"): "word",
 }
+#: vector kinds -> the kind of one component (``[0]``, ``[1]``, ``[2]``)
+VECTORS = {"point": "length", "velocity_vector": "velocity", "direction": "number"}
+#: a vector the loader defaults when the file leaves it out, so that one component can still be varied
+_DEFAULT_VECTORS = {("medium", "flow"): [0.0, 0.0, 0.0]}
 
 #: SI unit of each numeric kind, for labels and dataset attributes
 UNITS = {"length": "m", "time": "s", "diffusion": "m^2/s", "rate": "1/s", "count": "molecules", "number": "1",
-         "int": "1", "memory": "lags"}
-NUMERIC = ("length", "time", "diffusion", "rate", "count", "number", "int")
+         "int": "1", "memory": "lags", "velocity": "m/s"}
+NUMERIC = ("length", "time", "diffusion", "rate", "count", "number", "int", "velocity")
 _AXES = "xyz"
 
-_SECTION = re.compile(r"^(medium|channel|signalling)\.([a-z_]+)$")
-_ITEM = re.compile(r"^(emitter|receiver)\[(\d+|\*)\]\.([a-z_]+)(?:\[(\d+)\])?$")
+_SECTION = re.compile(r"^(medium|channel|signalling)\.([a-z_]+)(?:\[(\d+)\])?$")
+_ITEM = re.compile(r"^(emitter|receiver|wall)\[(\d+|\*)\]\.([a-z_]+)(?:\[(\d+)\])?$")
 
 
 class Field(NamedTuple):
@@ -67,7 +79,7 @@ class Field(NamedTuple):
     @property
     def kind(self) -> str:
         if self.component is not None:
-            return "length"
+            return VECTORS[KINDS[(self.table, self.key)]]
         return KINDS[(self.table, self.key)]
 
     @property
@@ -87,12 +99,14 @@ def known_paths() -> list[str]:
     """Every path pattern a sweep accepts (for suggestions and help)."""
     out = []
     for (table, key), kind in KINDS.items():
-        if table in ("emitter", "receiver"):
+        if table in ("emitter", "receiver", "wall"):
             out.append(f"{table}[0].{key}")
-            if kind == "point":
+            if kind in VECTORS:
                 out.append(f"{table}[0].{key}[0]")
         else:
             out.append(f"{table}.{key}")
+            if kind in VECTORS:
+                out.append(f"{table}.{key}[0]")
     return out
 
 
@@ -101,17 +115,13 @@ def parse_field(path: str, option: str = "--vary") -> Field:
     text = path.strip()
     m = _SECTION.match(text)
     if m and (m.group(1), m.group(2)) in KINDS:
-        return Field(text, m.group(1), None, m.group(2), None)
+        return Field(text, m.group(1), None, m.group(2), _component(m.group(1), m.group(2), m.group(3), path,
+                                                                   option))
     m = _ITEM.match(text)
     if m and (m.group(1), m.group(3)) in KINDS:
         table, index, key, comp = m.group(1), m.group(2), m.group(3), m.group(4)
         index = index if index == "*" else int(index)
-        if comp is not None:
-            if KINDS[(table, key)] != "point" or int(comp) > 2:
-                raise InputError(option, path, f"[{comp}] picks a coordinate, but {table}.{key} is not a point or "
-                                 "the index is above 2", f"write {table}[i].position[0..2] or centre[0..2]")
-            comp = int(comp)
-        return Field(text, table, index, key, comp)
+        return Field(text, table, index, key, _component(table, key, comp, path, option))
     from capacity.scenario.load import _nearest
 
     generic = re.sub(r"\[(\d+|\*)\]", "[0]", text)
@@ -121,6 +131,28 @@ def parse_field(path: str, option: str = "--vary") -> Field:
                      hint + "fields: " + ", ".join(known_paths()) + " ([*] = every emitter/receiver)")
 
 
+def _component(table: str, key: str, comp: str | None, path: str, option: str) -> int | None:
+    """The ``[k]`` of a path as an int, checked: only vectors have components, and only 0, 1, 2."""
+    if comp is None:
+        return None
+    if KINDS[(table, key)] not in VECTORS or int(comp) > 2:
+        vectors = ", ".join(f"{t}.{k}" for (t, k), kind in KINDS.items() if kind in VECTORS)
+        raise InputError(option, path, f"[{comp}] picks a component, but {table}.{key} is not a vector or the "
+                         "index is above 2", f"give [0], [1] or [2] (x, y, z) after a vector field: {vectors}")
+    return int(comp)
+
+
+def _set_component(holder: dict, field: Field, value, where: str, option: str) -> None:
+    """Set one component of the vector ``holder[field.key]`` (the loader's default vector when it is left out)."""
+    vector = holder.get(field.key, _DEFAULT_VECTORS.get((field.table, field.key)))
+    if not isinstance(vector, list) or len(vector) != 3:
+        raise InputError(option, field.path, f"{where}.{field.key} is not a vector [x, y, z] in the scenario",
+                         "fix the scenario file, or vary the whole vector")
+    vector = list(vector)
+    vector[field.component] = value
+    holder[field.key] = vector
+
+
 def set_value(data: dict, field: Field, value, option: str = "--vary") -> dict:
     """A deep copy of the scenario table ``data`` with ``field`` set to ``value`` (SI number, word, point...)."""
     out = copy.deepcopy(data)
@@ -128,7 +160,10 @@ def set_value(data: dict, field: Field, value, option: str = "--vary") -> dict:
         section = out.setdefault(field.table, {})
         if not isinstance(section, dict):
             raise InputError(option, field.path, f"[{field.table}] is not a table in the scenario", "fix the file")
-        section[field.key] = value
+        if field.component is None:
+            section[field.key] = value
+        else:
+            _set_component(section, field, value, field.table, option)
         return out
     items = out.get(field.table)
     if not isinstance(items, list) or not items:
@@ -144,12 +179,6 @@ def set_value(data: dict, field: Field, value, option: str = "--vary") -> dict:
         item = items[k]
         if field.component is None:
             item[field.key] = value
-            continue
-        point = item.get(field.key)
-        if not isinstance(point, list) or len(point) != 3:
-            raise InputError(option, field.path, f"{field.table}[{k}].{field.key} is not a point [x, y, z]",
-                             "fix the scenario file")
-        point = list(point)
-        point[field.component] = value
-        item[field.key] = point
+        else:
+            _set_component(item, field, value, f"{field.table}[{k}]", option)
     return out

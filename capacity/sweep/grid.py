@@ -19,7 +19,7 @@ from typing import NamedTuple
 import numpy as np
 
 from capacity.errors import InputError
-from capacity.sweep.fields import NUMERIC, Field, parse_field, set_value
+from capacity.sweep.fields import NUMERIC, VECTORS, Field, parse_field, set_value
 from capacity.units import DIMENSIONS, to_si
 
 #: a grid larger than this needs ``force=True`` (``--force``)
@@ -100,12 +100,13 @@ def _scalar(item: str, kind: str, text: str, option: str):
     return item  # a word: the loader checks it against its options
 
 
-def _point(item: str, text: str, option: str) -> tuple:
+def _point(item: str, text: str, option: str, kind: str = "length") -> tuple:
+    """One vector x,y,z (points: three lengths; flows: three velocities; wall normals: three numbers)."""
     parts = item.split(",")
     if len(parts) != 3:
-        _fail(text, f"{item!r} is not a point x,y,z", "write points as x,y,z separated by ';', e.g. "
-              "0um,0um,0um;5um,0um,0um (or vary one coordinate: position[0])", option)
-    return tuple(_scalar(p, "length", text, option) for p in parts)
+        _fail(text, f"{item!r} is not a vector x,y,z", "write vectors as x,y,z separated by ';', e.g. "
+              "0um,0um,0um;5um,0um,0um (or vary one component: position[0], flow[0])", option)
+    return tuple(_scalar(p, kind, text, option) for p in parts)
 
 
 def _range(spec: str, kind: str, text: str, option: str) -> tuple[tuple, str]:
@@ -155,8 +156,8 @@ def parse_axis(text: str, option: str = "--vary") -> Axis:
     kind = field.kind
     if ":" in spec:
         values, spacing = _range(spec, kind, text, option)
-    elif kind == "point":
-        values, spacing = tuple(_point(p, text, option) for p in spec.split(";")), "list"
+    elif kind in VECTORS:
+        values, spacing = tuple(_point(p, text, option, VECTORS[kind]) for p in spec.split(";")), "list"
     else:
         values, spacing = tuple(_scalar(v, kind, text, option) for v in spec.split(",")), "list"
     if len(set(values)) != len(values):

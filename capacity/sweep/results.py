@@ -14,7 +14,7 @@ from capacity.sweep.fields import UNITS
 from capacity.sweep.measures import unit_of
 
 #: how axis values are shown in plots: kind -> (factor from SI, unit)
-DISPLAY = {"length": (1e6, "um"), "time": (1e3, "ms"), "diffusion": (1e12, "um^2/s")}
+DISPLAY = {"length": (1e6, "um"), "time": (1e3, "ms"), "diffusion": (1e12, "um^2/s"), "velocity": (1e6, "um/s")}
 
 
 def versions() -> dict:

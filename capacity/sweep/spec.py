@@ -63,7 +63,7 @@ def _file_axes(table) -> list[str]:
     out = []
     for field, values in table.items():
         if isinstance(values, list):
-            sep = ";" if field.rstrip().endswith(("position", "centre")) else ","
+            sep = ";" if field.rstrip().endswith(("position", "centre", "flow", "point", "normal")) else ","
             values = sep.join(",".join(str(c) for c in v) if isinstance(v, list) else str(v) for v in values)
         out.append(f"{field}={values}")
     return out
