@@ -91,7 +91,7 @@ def run(n_particles: int, out: Path, quick: bool) -> dict:
     for sc in specs[: 3 if quick else None]:
         memory = 10
         t0 = time.time()
-        truth = channel_response(sc, "particles", memory=memory, particles=n_particles, seed=2024)
+        truth = channel_response(sc, "particles", memory=memory, particle_count=n_particles, seed=2024)
         t_part = time.time() - t0
         pe = peclet_numbers(sc.receiver_radii, sc.flow, sc.medium.diffusion)
         for name in ("lone", "shadowed") if _renewal_applies(sc) else ("lone",):

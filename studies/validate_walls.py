@@ -67,7 +67,7 @@ def main(argv=None) -> int:
     rows, summary = [], {}
     for k, spec in enumerate(LAYOUTS):
         seed = 100 + k
-        s = scenario_from_dict(spec).with_channel(particles=args.particles, seed=seed)
+        s = scenario_from_dict(spec).with_channel(particle_count=args.particles, seed=seed)
         t0 = time.time()
         sh = channel_response(s, "shadowed")
         pa = channel_response(s, "particles")

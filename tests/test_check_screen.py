@@ -38,7 +38,9 @@ def test_echoed_values_match_the_file_in_its_own_units():
     assert shown["channel.symbol_interval"]["value"] == pytest.approx(0.2, rel=1e-15)
     assert shown["channel.symbol_interval"]["unit"] == "s"
     lines = format_parameters(load_scenario("demo"))
-    assert any(line.strip().startswith("channel.time_step") and "automatic" in line for line in lines)
+    assert any(line.strip().startswith("channel.particle_step") and "automatic" in line for line in lines)
+    assert any(line.strip().startswith("channel.particle_count") and line.split("=")[1].split()[0]
+               == str(raw["channel"]["particle_count"]) for line in lines)
 
 
 def test_check_prints_the_legend_and_the_parameters():

@@ -147,6 +147,61 @@ def test_bad_input_exits_2_without_traceback(tmp_path, replace, field, mention):
     assert mention in match["rest"] and "Fix:" in match["rest"]
 
 
+# renamed keys (channel.particles -> particle_count, channel.time_step -> particle_step) and the renamed option
+OLD_KEYS = SMALL.replace('response = "lone"', 'response = "lone"\nparticles = 700\ntime_step = "2 ms"')
+NEW_KEYS = SMALL.replace('response = "lone"', 'response = "lone"\nparticle_count = 700\nparticle_step = "2 ms"')
+
+
+def test_old_key_names_read_the_same_with_a_note_that_strict_ignores(tmp_path):
+    old, new = tmp_path / "old.toml", tmp_path / "new.toml"
+    old.write_text(OLD_KEYS)
+    new.write_text(NEW_KEYS)
+    proc = _run("check", str(old), "--json", "--strict")  # exit 0: a renamed key is not a doubt about the physics
+    notes = [line[len("note: "):] for line in proc.stderr.splitlines() if line.startswith("note: ")]
+    assert len(notes) == 2
+    assert notes[0].startswith(f"channel.particles in {old} is deprecated: rename it to channel.particle_count")
+    assert notes[1].startswith(f"channel.time_step in {old} is deprecated: rename it to channel.particle_step")
+    data = json.loads(proc.stdout)
+    assert data["deprecations"] == notes
+    reference = _run("check", str(new), "--json", "--strict")
+    assert "note:" not in reference.stderr and json.loads(reference.stdout)["deprecations"] == []
+    assert data["parameters"] == json.loads(reference.stdout)["parameters"]  # the same scenario, as read
+    shown = {p["field"]: p for p in data["parameters"]}
+    assert shown["channel.particle_count"]["value"] == 700
+    assert shown["channel.particle_step"]["value"] == pytest.approx(2e-3, rel=1e-15)
+    assert not any(p["field"] in ("channel.particles", "channel.time_step") for p in data["parameters"])
+    # any other command that loads the scenario prints the notes too
+    other = _run("response", str(old), "--json")
+    assert [line for line in other.stderr.splitlines() if line.startswith("note: ")] == [f"note: {n}" for n in notes]
+
+
+def test_old_and_new_key_together_exits_2(tmp_path):
+    path = tmp_path / "both.toml"
+    path.write_text(NEW_KEYS.replace("particle_count = 700", "particle_count = 700\nparticles = 700"))
+    proc = _run("check", str(path), check=False)
+    assert proc.returncode == 2 and "Traceback" not in proc.stderr
+    match = ERROR_LINE.match(proc.stderr.strip())
+    assert match, proc.stderr
+    assert match["field"] == "channel.particles" and match["value"] == "700"
+    assert "old name of channel.particle_count" in match["rest"] and "Fix: keep only channel.particle_count" in \
+        match["rest"]
+
+
+def test_particle_count_option_and_its_hidden_old_spelling(small):
+    # (that --particle-count reaches the particle run: tests/test_particle_budget.py, refused at 1e9 molecules)
+    helptext = _run("response", "--help").stdout
+    assert "--particle-count N" in helptext and "--particles" not in helptext
+    line = re.compile(r"^capacity response: error: (?P<field>.+?) = (?P<value>.+?): (?P<rest>.+)$")
+    new = _run("response", str(small), "--particle-count", "0", check=False)
+    assert new.returncode == 2 and line.match(new.stderr.strip())["field"] == "--particle-count"
+    old = _run("response", str(small), "--particles", "0", check=False)  # taken as --particle-count 0
+    first, error = old.stderr.strip().splitlines()
+    assert old.returncode == 2 and first == "note: --particles is deprecated: use --particle-count (same meaning)"
+    assert line.match(error)["field"] == "--particle-count" and line.match(error)["value"] == "0"
+    both = _run("response", str(small), "--particles", "5", "--particle-count", "5", check=False)
+    assert both.returncode == 2 and line.match(both.stderr.strip())["field"] == "--particles"
+
+
 def test_unreadable_file_exits_2(tmp_path):
     bad = tmp_path / "notoml.toml"
     bad.write_text("name = [unclosed\n")

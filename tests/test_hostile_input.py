@@ -178,7 +178,7 @@ def test_cli_deeply_nested_toml_exit_2(cli):
 # ------------------------------------------------------------------------ 8: enormous integers
 @pytest.mark.parametrize(
     ("section", "key"),
-    [("channel", "seed"), ("channel", "particles"), ("signalling", "levels"), ("channel", "background"),
+    [("channel", "seed"), ("channel", "particle_count"), ("signalling", "levels"), ("channel", "background"),
      ("channel", "memory_tolerance"), ("channel", "memory"), ("signalling", "peak")],
 )
 def test_enormous_integers_are_input_errors(section, key):

@@ -15,8 +15,8 @@ from capacity.physics.response import channel_response
 
 def test_a_billion_molecules_is_refused_with_the_estimate():
     s = load_scenario("demo")  # 25 slots of 200 ms: about a day of simulation on the build machine
-    with pytest.raises(InputError, match=r"channel\.particles.*estimated at .* hours.*--force"):
-        channel_response(s, "particles", particles=10**9)
+    with pytest.raises(InputError, match=r"channel\.particle_count.*estimated at .* hours.*--force"):
+        channel_response(s, "particles", particle_count=10**9)
 
 
 def test_small_runs_skip_the_pilot_and_force_skips_the_check():
@@ -34,6 +34,6 @@ def test_small_runs_skip_the_pilot_and_force_skips_the_check():
 
 def test_cli_refusal_exits_2_without_a_traceback():
     out = subprocess.run([sys.executable, "-m", "capacity.cli", "response", "demo", "--model", "particles",
-                          "--particles", "1000000000"], capture_output=True, text=True)
+                          "--particle-count", "1000000000"], capture_output=True, text=True)
     assert out.returncode == 2
     assert "hours" in out.stderr and "--force" in out.stderr and "Traceback" not in out.stderr

@@ -114,15 +114,42 @@ def test_particles_step_limit_is_an_input_error():
     sc = scenario(memory=3)
     # (L+1) Ts / time_step = 4 * 0.3 / 1e-7 = 1.2e7 steps > 1e6
     with pytest.raises(InputError, match="channel.memory") as err:
+        channel_response(sc, "particles", particle_step=1e-7, particle_count=10)
+    assert "particle_step" in str(err.value)
+
+
+def test_old_particle_keywords_work_with_a_deprecation_warning():
+    sc = scenario(memory=3)
+    with pytest.raises(InputError) as new:
+        channel_response(sc, "particles", particle_step=1e-7, particle_count=10)
+    with pytest.warns(DeprecationWarning) as caught, pytest.raises(InputError) as old:
         channel_response(sc, "particles", time_step=1e-7, particles=10)
-    assert "time_step" in str(err.value)
+    # the same refusal, with the step count (L+1) Ts / dt = 1.2e7 computed from the step given under the old name
+    assert str(old.value) == str(new.value) and "1.2e+07 time steps" in str(old.value)
+    texts = sorted(str(w.message) for w in caught if w.category is DeprecationWarning)
+    assert texts == ["channel_response(particles=...) is deprecated: pass particle_count=... instead (same meaning "
+                     "and units)", "channel_response(time_step=...) is deprecated: pass particle_step=... instead "
+                     "(same meaning and units)"]
+
+
+@pytest.mark.parametrize("kwargs, field", [
+    (dict(particle_count=0), "particle_count"),
+    (dict(particle_count=2.5), "particle_count"),
+    (dict(particle_step=-1e-3), "particle_step"),
+    (dict(particle_step=0.5), "particle_step"),  # longer than the 0.3 s slot
+    (dict(particles=100, particle_count=100), "particles"),  # both spellings
+])
+def test_particle_keywords_checked_under_their_own_names(kwargs, field):
+    with pytest.raises(InputError) as err:
+        channel_response(scenario(memory=3), "particles", **kwargs)
+    assert err.value.field == field and err.value.fix
 
 
 @pytest.mark.slow
 def test_particles_dispatch_and_overrides():
-    sc = scenario(memory=3, particles=50, seed=1)
-    a = channel_response(sc, "particles", particles=1000, seed=3)
-    b = channel_response(sc, "particles", particles=1000, seed=4)
+    sc = scenario(memory=3, particle_count=50, seed=1)
+    a = channel_response(sc, "particles", particle_count=1000, seed=3)
+    b = channel_response(sc, "particles", particle_count=1000, seed=4)
     lone = channel_response(sc, "lone")
     assert a.model == "particles" and a.stderr.shape == a.hits.shape == (2, 3, 4)
     assert any("1000 molecules" in n and "seed 3" in n for n in a.notes)

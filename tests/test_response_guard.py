@@ -22,7 +22,7 @@ def near_bead(gap_um: float, memory=24):
     """The demo's two beads, one emitter ``gap_um`` from the near bead's surface (an ordinary design)."""
     s = capacity.load_scenario("demo")
     emitter = dataclasses.replace(s.emitters[0], position=(7e-6 - gap_um * 1e-6, 2e-6, 0.0))
-    return s.replace(emitters=(emitter,)).with_channel(symbol_interval=0.2, memory=memory, particles=20_000)
+    return s.replace(emitters=(emitter,)).with_channel(symbol_interval=0.2, memory=memory, particle_count=20_000)
 
 
 def test_invariants_are_detected():

@@ -3,12 +3,13 @@ units (common practice); every error kind is checked for the field it names and 
 
 import copy
 import re
+import warnings
 from pathlib import Path
 
 import pytest
 
 from capacity.errors import InputError
-from capacity.scenario.load import load_scenario, scenario_from_dict
+from capacity.scenario.load import ScenarioKeyWarning, load_scenario, scenario_from_dict
 from capacity.scenario.types import Scenario
 
 DATA = Path(__file__).parent / "data" / "scenarios"
@@ -44,7 +45,7 @@ def test_file_with_units_round_trip():
     assert s.receivers[1].radius == pytest.approx(5e-6, rel=0, abs=1e-20)  # written "5µm" (no space, micro sign)
     c = s.channel
     assert c.symbol_interval == pytest.approx(0.2, rel=0, abs=1e-16)
-    assert c.time_step == pytest.approx(5e-4, rel=0, abs=1e-18)
+    assert c.particle_step == pytest.approx(5e-4, rel=0, abs=1e-18)
     assert (c.memory, c.memory_tolerance, c.counting, c.residual, c.response) == (
         12,
         0.005,
@@ -53,7 +54,7 @@ def test_file_with_units_round_trip():
         "lone",
     )
     assert c.background == (0.5, 2.0)
-    assert c.particles == 40000 and isinstance(c.particles, int)
+    assert c.particle_count == 40000 and isinstance(c.particle_count, int)
     assert c.seed == 7
     g = s.signalling
     assert (g.scheme, g.levels, g.peak, g.budget, g.emitter) == ("amplitude", 4, 3000.0, 1200.0, 0)
@@ -67,7 +68,7 @@ def test_file_in_si_numbers_and_defaults():
     assert s.receivers[1].kind == "passive" and s.receivers[1].sample_offset == 0.25
     assert s.receivers[0].kind == "absorbing" and s.receivers[0].sample_offset is None
     assert s.channel.background == (1.5, 1.5)  # one number spread over both receivers
-    assert s.channel.memory == "auto" and s.channel.response == "shadowed" and s.channel.particles == 20000
+    assert s.channel.memory == "auto" and s.channel.response == "shadowed" and s.channel.particle_count == 20000
     assert s.signalling.scheme == "spatial" and s.signalling.silent is False
 
 
@@ -75,7 +76,7 @@ def test_minimal_file_defaults():
     s = load_scenario(str(DATA / "minimal.toml"))
     assert s.signalling.scheme == "amplitude" and s.signalling.levels == 2
     assert s.channel.background == (0.0,)
-    assert s.channel.time_step is None and s.channel.seed == 0
+    assert s.channel.particle_step is None and s.channel.seed == 0
 
 
 def test_dict_and_file_agree(tmp_path):
@@ -85,6 +86,51 @@ def test_dict_and_file_agree(tmp_path):
     import tomllib
 
     assert load_scenario(path) == scenario_from_dict(tomllib.loads(text))
+
+
+# -- renamed keys: channel.particles -> particle_count, channel.time_step -> particle_step ------------------------
+def test_old_key_names_load_to_the_same_scenario_with_a_note():
+    # reference: the same file written with the new names (pond_two_cells.toml)
+    with pytest.warns(ScenarioKeyWarning) as caught:
+        old = load_scenario(DATA / "pond_two_cells_old_keys.toml")
+    new = load_scenario(DATA / "pond_two_cells.toml")
+    assert old == new
+    assert old.channel.particle_count == 40000 and old.channel.particle_step == pytest.approx(5e-4, rel=0, abs=1e-18)
+    notes = [str(w.message) for w in caught if issubclass(w.category, ScenarioKeyWarning)]
+    assert len(notes) == 2
+    assert re.search(r"channel\.particles in .*pond_two_cells_old_keys\.toml is deprecated: rename it to "
+                     r"channel\.particle_count", notes[0])
+    assert re.search(r"channel\.time_step in .* is deprecated: rename it to channel\.particle_step", notes[1])
+
+
+def test_new_key_names_give_no_note():
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", ScenarioKeyWarning)
+        load_scenario(DATA / "pond_two_cells.toml")
+        load_scenario("demo")
+
+
+def test_old_key_in_a_dict_reads_the_same_and_leaves_the_dict_alone():
+    d = base()
+    d["channel"].update({"particles": 500, "time_step": "2 ms"})
+    before = copy.deepcopy(d)
+    with pytest.warns(ScenarioKeyWarning) as caught:
+        old = scenario_from_dict(d)
+    assert [str(w.message).split(" is deprecated")[0] for w in caught] == ["channel.particles in <dict>",
+                                                                            "channel.time_step in <dict>"]
+    assert d == before
+    new = base()
+    new["channel"].update({"particle_count": 500, "particle_step": "2 ms"})
+    assert old == scenario_from_dict(new) and old.channel.particle_count == 500
+
+
+@pytest.mark.parametrize("old, new", [("particles", "particle_count"), ("time_step", "particle_step")])
+def test_old_and_new_name_together_is_an_error(old, new):
+    d = base()
+    d["channel"].update({old: 100, new: 100})
+    with pytest.raises(InputError, match=rf"channel\.{old} = 100: is the old name of channel\.{new}, which is also "
+                       rf"given.*Fix: keep only channel\.{new}"):
+        scenario_from_dict(d)
 
 
 def test_signalling_emitter_by_name_and_index():
@@ -185,7 +231,12 @@ CASES = [
     (_set(["signalling"], {"silent": "yes"}), r"signalling\.silent.*true or false"),
     (_set(["signalling"], {"levels": 2.5}), r"signalling\.levels.*whole number"),
     (_set(["signalling"], {"levels": True}), r"signalling\.levels.*integer"),
-    (_set(["channel", "particles"], 1.5e3 + 0.5), r"channel\.particles.*whole number"),
+    (_set(["channel", "particle_count"], 1.5e3 + 0.5), r"channel\.particle_count = 1500\.5.*whole number"),
+    # a deprecated key is named as written, with the rename in the fix
+    (_set(["channel", "particles"], 1.5e3 + 0.5),
+     r"channel\.particles = 1500\.5.*whole number.*rename channel\.particles to channel\.particle_count"),
+    (_set(["channel", "time_step"], "1 s"),
+     r"channel\.time_step = .*longer than the symbol_interval.*rename channel\.time_step to channel\.particle_step"),
     (_set(["channel", "seed"], -1), r"channel\.seed.*non-negative integer"),
     (_set(["channel", "memory_tolerance"], "small"), r"channel\.memory_tolerance.*must be a number"),
     (_set(["signalling"], {"amplitudes": 5}), r"signalling\.amplitudes.*list of molecule counts"),
@@ -203,7 +254,7 @@ CASES = [
     (_set(["medium", "degradation"], -0.1), r"medium\.degradation.*must not be negative.*Fix: give a rate >= 0"),
     (_set(["receiver", 0, "radius"], "0 um"), r"receiver\[0\]\.radius.*must be positive.*give a positive radius"),
     (_set(["channel", "symbol_interval"], -0.1), r"channel\.symbol_interval.*must be positive"),
-    (_set(["channel", "particles"], 0), r"channel\.particles.*positive integer"),
+    (_set(["channel", "particle_count"], 0), r"channel\.particle_count.*positive integer"),
     (_set(["channel", "background"], -1.0), r"channel\.background\[0\].*must not be negative"),
     (_set(["channel", "background"], [1.0, -0.5]), r"channel\.background\[1\].*must not be negative"),
     (
@@ -215,8 +266,8 @@ CASES = [
     (_set(["channel", "memory"], "forever"), r"channel\.memory.*neither an integer nor \"auto\""),
     (_set(["channel", "memory"], 2001), r"channel\.memory = 2001: is above the cap of 2000 lags"),
     (_set(["channel", "memory_tolerance"], 1.5), r"channel\.memory_tolerance.*between 0 and 1"),
-    (_set(["channel", "time_step"], "1 s"), r"channel\.time_step.*longer than the symbol_interval"),
-    (_set(["channel", "time_step"], "0 s"), r"channel\.time_step.*must be positive"),
+    (_set(["channel", "particle_step"], "1 s"), r"channel\.particle_step.*longer than the symbol_interval"),
+    (_set(["channel", "particle_step"], "0 s"), r"channel\.particle_step.*must be positive"),
     # duplicate names
     (_set(["emitter", 1, "name"], "A"), r"emitter\[1\]\.name = 'A': is already used by emitter\[0\]"),
     (_set(["receiver", 1, "name"], "R1"), r"receiver\[1\]\.name.*already used by receiver\[0\]"),

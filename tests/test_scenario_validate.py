@@ -76,9 +76,9 @@ BAD = [
     (dict(channel=chan(counting="gauss")), r"channel\.counting.*\"poisson\", \"binomial\""),
     (dict(channel=chan(residual="keep")), r"channel\.residual.*\"interference\", \"drop\""),
     (dict(channel=chan(response="exact")), r"channel\.response.*\"lone\", \"shadowed\", \"particles\""),
-    (dict(channel=chan(particles=1000.0)), r"channel\.particles.*positive integer"),
-    (dict(channel=chan(particles=-5)), r"channel\.particles.*positive integer"),
-    (dict(channel=chan(time_step=1.5)), r"channel\.time_step.*longer than the symbol_interval"),
+    (dict(channel=chan(particle_count=1000.0)), r"channel\.particle_count.*positive integer"),
+    (dict(channel=chan(particle_count=-5)), r"channel\.particle_count.*positive integer"),
+    (dict(channel=chan(particle_step=1.5)), r"channel\.particle_step.*longer than the symbol_interval"),
     (dict(channel=chan(seed=-3)), r"channel\.seed.*non-negative"),
     (dict(signalling=Signalling(scheme="pulse")), r"signalling\.scheme.*not a known option"),
     (dict(signalling=Signalling(levels=1)), r"signalling\.levels.*>= 2"),
@@ -185,11 +185,11 @@ def test_warning_early_sample_coarse_step_heavy_work():
         Receiver("R1", (15 * UM, 0.0, 0.0), 5 * UM),
         Receiver("P", (-15 * UM, 0.0, 0.0), 4 * UM, kind="passive", sample_offset=2e-4),
     )
-    s = make(receivers=rx, channel=chan(symbol_interval=0.05, memory=2000, particles=100000, time_step=0.04))
+    s = make(receivers=rx, channel=chan(symbol_interval=0.05, memory=2000, particle_count=100000, particle_step=0.04))
     w = geometry_warnings(validate_scenario(s))
     assert any('passive receiver "P" samples 0.0002 s into the slot, 0.40%' in x for x in w)
     # earliest peak: A -> R1, 0.2099 s; 0.04 / 0.2099 = 0.191
-    assert any("time_step (0.04 s) is 0.191 of the earliest peak time (0.21 s)" in x for x in w)
+    assert any("particle_step (0.04 s) is 0.191 of the earliest peak time (0.21 s)" in x for x in w)
     assert any("4e+08 molecule-slots" in x for x in w)  # 1e5 particles x 2 emitters x 2001 slots
     assert not any("peaks" in x and '"R1"' in x and '"A"' in x for x in w)  # 4.2 slots: below the 5-slot mark
 

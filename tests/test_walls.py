@@ -192,7 +192,7 @@ def test_reflection_conserves_molecules(geom):
 
 def test_absorbing_sphere_near_a_wall_shadowed_images_vs_particles():
     # sphere 2 um from the wall (its image 4 um away); the targets of the shadowed model: totals 10 %, slots 0.005
-    s = _scenario([_wall(-7)], particles=40000, seed=5, memory=4)
+    s = _scenario([_wall(-7)], particle_count=40000, seed=5, memory=4)
     sh = channel_response(s, "shadowed")
     pa = channel_response(s, "particles")
     assert np.abs(sh.hits - pa.hits).max() < 0.005
@@ -209,7 +209,7 @@ def test_channel_shadowed_images_vs_particles_two_receivers():
     s = _scenario([_wall(-7), _wall(9, [0, -1, 0])],
                   receivers=[{"name": "R1", "centre": ["12 um", "0 um", "0 um"], "radius": "4 um"},
                              {"name": "R2", "centre": ["-12 um", "2 um", "0 um"], "radius": "5 um"}],
-                  particles=200000, seed=6)
+                  particle_count=200000, seed=6)
     sh = channel_response(s, "shadowed")
     pa = channel_response(s, "particles")
     assert np.abs(sh.hits - pa.hits).max() < 0.005

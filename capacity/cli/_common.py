@@ -23,7 +23,7 @@ def add_scenario_argument(parser) -> None:
     )
     parser.add_argument("--strict", action="store_true",
                         help="treat the scenario's warnings (suspicious geometry, values whose size suggests a unit "
-                             "slip) as errors: exit status 2")
+                             "slip) as errors: exit status 2 (notes about renamed keys do not count)")
 
 
 def demo_path() -> Path:
@@ -35,22 +35,41 @@ def demo_path() -> Path:
 
 def load(path_or_demo: str, *, strict: bool = False, announce: bool = True):
     """Load a scenario file, or a built-in one by name (as :func:`capacity.load_scenario`), and deal with its
-    warnings: printed once on stderr (``announce``), or an :class:`InputError` with ``strict``."""
+    warnings and deprecation notes: printed once on stderr (``announce``); ``strict`` turns the warnings (doubts
+    about the physics or the units) into an :class:`InputError`, but not the deprecation notes (an old key name,
+    :data:`capacity.scenario.load.RENAMED`, reads to the same scenario)."""
     import sys
 
+    scenario, notes, warnings = load_noted(path_or_demo, strict=strict)
+    if announce:
+        for note in notes:
+            print(f"note: {note}", file=sys.stderr)
+        for w in warnings:
+            print(f"warning: {w}", file=sys.stderr)
+    return scenario
+
+
+def load_noted(path_or_demo: str, *, strict: bool = False):
+    """``(scenario, deprecation notes, warnings)`` of a scenario file, nothing printed; with ``strict`` a
+    scenario with warnings raises :class:`InputError` (deprecation notes never do)."""
+    import warnings as py_warnings
+
     from capacity.errors import InputError
-    from capacity.scenario.load import load_scenario
+    from capacity.scenario.load import ScenarioKeyWarning, load_scenario
     from capacity.scenario.summary import scenario_warnings
 
-    scenario = load_scenario(path_or_demo)
+    with py_warnings.catch_warnings(record=True) as caught:
+        py_warnings.simplefilter("always", ScenarioKeyWarning)
+        scenario = load_scenario(path_or_demo)
+    notes = [str(w.message) for w in caught if issubclass(w.category, ScenarioKeyWarning)]
+    for w in caught:  # any other warning goes on as if it had not been caught
+        if not issubclass(w.category, ScenarioKeyWarning):
+            py_warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
     warnings = scenario_warnings(scenario)
     if warnings and strict:
         raise InputError("--strict", path_or_demo, f"the scenario has {len(warnings)} warning(s): "
                          + "; ".join(warnings), "fix the values named, or drop --strict")
-    if warnings and announce:
-        for w in warnings:
-            print(f"warning: {w}", file=sys.stderr)
-    return scenario
+    return scenario, notes, warnings
 
 
 def to_jsonable(obj):
@@ -128,7 +147,7 @@ def effort_of(args):
 
 
 #: command-line option -> (scenario section, field) it overrides
-OVERRIDES = {"--budget": ("signalling", "budget"), "--particles": ("channel", "particles"),
+OVERRIDES = {"--budget": ("signalling", "budget"), "--particle-count": ("channel", "particle_count"),
              "--seed": ("channel", "seed")}
 
 

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from capacity.cli._common import add_scenario_argument, dump_json, load
+from capacity.cli._common import add_scenario_argument, dump_json, load_noted
 
 
 def add_parser(sub) -> None:
@@ -21,12 +21,19 @@ def add_parser(sub) -> None:
 
 
 def run(args) -> int:
+    """The warnings are part of the summary (stdout); deprecation notes (old key names) go on stderr as with every
+    command, and into the JSON as ``deprecations``."""
+    import sys
+
     from capacity.scenario.summary import format_summary, summarise
 
-    scenario = load(args.scenario, strict=args.strict, announce=False)
+    scenario, notes, _ = load_noted(args.scenario, strict=args.strict)
+    for note in notes:
+        print(f"note: {note}", file=sys.stderr)
     from capacity.scenario.echo import LEGEND, format_parameters, parameters
 
     summary = summarise(scenario)
+    summary["deprecations"] = notes
     summary["response_model_notes"] = model_notes(scenario)
     summary["parameters"] = parameters(scenario)
     if args.json:

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import argparse
 import sys
 
 import numpy as np
@@ -32,7 +33,10 @@ def add_parser(sub) -> None:
     )
     add_scenario_argument(p)
     p.add_argument("--model", choices=MODELS, help="response model (default: the scenario's channel.response)")
-    p.add_argument("--particles", type=int, metavar="N", help="molecules simulated per emitter (particle model)")
+    p.add_argument("--particle-count", type=int, metavar="N",
+                   help="molecules simulated per emitter (particle model; overrides channel.particle_count)")
+    # the old spelling, hidden from --help, accepted with a note for one release
+    p.add_argument("--particles", dest="old_particles", type=int, help=argparse.SUPPRESS)
     p.add_argument("--seed", type=int, metavar="S", help="random seed (particle model)")
     p.add_argument("--force", action="store_true",
                    help="start a particle run even when a timed pilot estimates it at more than an hour")
@@ -112,10 +116,11 @@ def run(args) -> int:
         raise InputError("--slots", args.slots, "must be at least 1", "give a number of slots such as 12")
     if args.plot:
         check_plot_path(args.plot)
+    _old_particles_option(args)
     scenario = apply_overrides(load(args.scenario, strict=args.strict), args)
     model = args.model or scenario.channel.response
     with status(f"computing the {model} response", args.quiet or args.json or model == "particles"):
-        response = channel_response(scenario, args.model, particles=args.particles, seed=args.seed,
+        response = channel_response(scenario, args.model, particle_count=args.particle_count, seed=args.seed,
                                     progress=not (args.json or args.quiet), force=args.force)
     if args.plot:
         from capacity.report.plots import plot_response
@@ -126,3 +131,15 @@ def run(args) -> int:
     print(dump_json(response_record(scenario, response)) if args.json
           else f"{format_response(scenario, response, args.slots)}\n{SAFETY}")
     return 0
+
+
+def _old_particles_option(args) -> None:
+    """``--particles N``, the deprecated spelling of ``--particle-count N``: taken as it, with a one-line note on
+    stderr; both spellings at once is an :class:`InputError`."""
+    if args.old_particles is None:
+        return
+    if args.particle_count is not None:
+        raise InputError("--particles", args.old_particles, "is the old name of --particle-count, which is also given",
+                         "give only --particle-count")
+    print("note: --particles is deprecated: use --particle-count (same meaning)", file=sys.stderr)
+    args.particle_count = args.old_particles

@@ -49,9 +49,9 @@ def scenario_toml(scenario, comments: tuple[str, ...] = ()) -> str:
     if len(c.background):
         lines.append(f"background = {_value([float(b) for b in c.background])}")
     lines += [f"counting = {_value(c.counting)}", f"residual = {_value(c.residual)}",
-              f"response = {_value(c.response)}", f"particles = {_value(int(c.particles))}"]
-    if c.time_step is not None:
-        lines.append(f"time_step = {_value(float(c.time_step))}")
+              f"response = {_value(c.response)}", f"particle_count = {_value(int(c.particle_count))}"]
+    if c.particle_step is not None:
+        lines.append(f"particle_step = {_value(float(c.particle_step))}")
     lines.append(f"seed = {_value(int(c.seed))}")
     s = scenario.signalling
     lines += ["", "[signalling]", f"scheme = {_value(s.scheme)}", f"levels = {_value(int(s.levels))}",

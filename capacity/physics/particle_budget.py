@@ -29,15 +29,15 @@ def estimated_seconds(run, particles: int) -> float:
 
 
 def check_run_time(run, particles: int, *, force: bool = False, limit: float = MAX_SECONDS) -> float | None:
-    """Raise :class:`InputError` (field ``channel.particles``) when the estimated time exceeds ``limit`` and
+    """Raise :class:`InputError` (field ``channel.particle_count``) when the estimated time exceeds ``limit`` and
     ``force`` is not set; returns the estimate (None when the run is small enough not to be checked)."""
     if force or particles <= SMALL * PILOT:
         return None
     seconds = estimated_seconds(run, particles)
     if seconds > limit:
-        raise InputError("channel.particles", particles,
+        raise InputError("channel.particle_count", particles,
                          f"the particle run is estimated at {seconds / 3600:.3g} hours (from a timed pilot of "
                          f"{PILOT} molecules per emitter), above the {limit / 3600:.3g} h limit",
-                         "simulate fewer molecules (--particles or channel.particles), keep fewer lags, or pass "
-                         "--force to run it anyway")
+                         "simulate fewer molecules (--particle-count or channel.particle_count), keep fewer lags, "
+                         "or pass --force to run it anyway")
     return seconds

@@ -20,6 +20,7 @@ unimodal in the lag, so no later slot rises above the threshold again.
 
 from __future__ import annotations
 
+import numbers
 import warnings
 from typing import NamedTuple
 
@@ -30,7 +31,7 @@ from capacity.physics.result import ChannelResponse
 
 #: largest memory "auto" may choose, in lags
 MEMORY_CAP = 2000
-#: largest number of particle time steps ((L+1) Ts / time_step) the particle model is asked to take
+#: largest number of particle time steps ((L+1) Ts / particle_step) the particle model is asked to take
 PARTICLE_STEP_LIMIT = 1e6
 
 
@@ -203,11 +204,12 @@ def _shadowed(lay: Layout, memory: int, options: dict, lone):
     return hits, tail, None, ["shadowed model: absorbing receivers take molecules from each other"] + notes
 
 
-def particle_step_count(lay: Layout, memory: int, time_step: float | None) -> float:
-    """Base time steps ((L+1) Ts / dt) of the particle model, with the simulator's own automatic dt."""
+def particle_step_count(lay: Layout, memory: int, particle_step: float | None) -> float:
+    """Base time steps ((L+1) Ts / dt) of the particle model, dt = ``particle_step`` (s) or, for None, the
+    simulator's own automatic step."""
     from capacity.physics._particles_checks import auto_time_step, check_inputs
 
-    dt = time_step
+    dt = particle_step
     if dt is None:
         inputs = check_inputs(lay.emitters, lay.centres, lay.radii, lay.passive, lay.offsets, lay.diffusion,
                               lay.degradation, lay.symbol_interval, memory, 1, 0, None)
@@ -218,25 +220,25 @@ def particle_step_count(lay: Layout, memory: int, time_step: float | None) -> fl
 def _particles(lay: Layout, memory: int, options: dict, lone):
     from capacity.physics.particles import simulate_hits
 
-    steps = particle_step_count(lay, memory, options["time_step"])
+    steps = particle_step_count(lay, memory, options["particle_step"])
     if steps > PARTICLE_STEP_LIMIT:
         raise InputError("channel.memory", memory,
-                         f"the particle model would take {steps:.3g} time steps ((L+1) Ts / time_step), above "
+                         f"the particle model would take {steps:.3g} time steps ((L+1) Ts / particle_step), above "
                          f"{PARTICLE_STEP_LIMIT:.0e}",
                          "keep fewer lags (smaller memory or larger memory_tolerance), set a longer "
-                         "channel.time_step, or use the lone or shadowed model")
+                         "channel.particle_step, or use the lone or shadowed model")
     from capacity.physics.particle_budget import check_run_time
 
     def run(n, progress=False):
         return simulate_hits(lay.emitters, lay.centres, lay.radii, lay.passive, lay.offsets, lay.diffusion,
                              lay.degradation, lay.symbol_interval, memory, particles=int(n), seed=int(options["seed"]),
-                             time_step=options["time_step"], progress=progress, walls=lay.walls, pulses=lay.pulses,
+                             time_step=options["particle_step"], progress=progress, walls=lay.walls, pulses=lay.pulses,
                              reaction_rates=lay.rates, flow=lay.flow)
 
-    check_run_time(run, int(options["particles"]), force=bool(options.get("force")))
-    hits, tail, stderr = run(options["particles"], options["progress"])
+    check_run_time(run, int(options["particle_count"]), force=bool(options.get("force")))
+    hits, tail, stderr = run(options["particle_count"], options["progress"])
     hits, tail = np.array(hits, dtype=np.float64), np.array(tail, dtype=np.float64)
-    notes = [f"particles model: {int(options['particles'])} molecules per emitter, seed {int(options['seed'])}"]
+    notes = [f"particles model: {int(options['particle_count'])} molecules per emitter, seed {int(options['seed'])}"]
     if lay.passive.any():
         _, lone_tail = lone(memory)
         tail[:, lay.passive] = lone_tail[:, lay.passive]
@@ -299,22 +301,27 @@ def broken_invariants(hits, tail, passive, *, shared: bool) -> list[str]:
     return out
 
 
-def channel_response(scenario, model=None, *, memory=None, particles=None, seed=None, time_step=None,
-                     progress=False, force=False) -> ChannelResponse:
+def channel_response(scenario, model=None, *, memory=None, particle_count=None, seed=None, particle_step=None,
+                     progress=False, force=False, particles=None, time_step=None) -> ChannelResponse:
     """Hit probabilities ``p[i, j, l]`` of a scenario with the chosen response model.
 
     scenario : :class:`capacity.Scenario`. model : ``"lone"`` | ``"shadowed"`` | ``"particles"`` (default
     ``scenario.channel.response``). memory : int L >= 0 or ``"auto"`` (default ``scenario.channel.memory``).
-    particles, seed, time_step (s) : particle-model settings overriding ``scenario.channel``. progress : show a
-    progress bar (particles). force : start a particle run even when a timed pilot estimates it at more than an
-    hour (:mod:`capacity.physics.particle_budget`; otherwise InputError).
+    particle_count (molecules per emitter), seed, particle_step (s) : particle-model settings overriding
+    ``scenario.channel``. progress : show a progress bar (particles). force : start a particle run even when a
+    timed pilot estimates it at more than an hour (:mod:`capacity.physics.particle_budget`; otherwise
+    InputError). particles, time_step : deprecated spellings of particle_count and particle_step, still accepted
+    with a ``DeprecationWarning`` for one release (giving both spellings is an InputError).
 
     Returns a :class:`ChannelResponse` with float64 numpy arrays: hits (E, R, L+1), tail (E, R), stderr
     (E, R, L+1) for ``particles`` else None, slot_edges ``Ts * arange(L+2)`` (s), and notes (model remarks, the
     memory, its tolerance and the largest tail mass). Raises :class:`InputError` for an unknown model, bad
     memory, or a layout the model cannot take.
     """
+    particle_count = _renamed_keyword("particles", particles, "particle_count", particle_count)
+    particle_step = _renamed_keyword("time_step", time_step, "particle_step", particle_step)
     ch = scenario.channel
+    _check_particle_settings(particle_count, particle_step, ch.symbol_interval)
     name = ch.response if model is None else model
     if name not in MODELS:
         raise InputError("channel.response", name, "unknown response model", f"use one of {sorted(MODELS)}")
@@ -340,9 +347,9 @@ def channel_response(scenario, model=None, *, memory=None, particles=None, seed=
         lags = int(setting)
         lone = _Lone(lay)
         notes.append(f"memory: L = {lags} lags (given)")
-    options = {"particles": ch.particles if particles is None else particles,
+    options = {"particle_count": ch.particle_count if particle_count is None else particle_count,
                "seed": ch.seed if seed is None else seed,
-               "time_step": ch.time_step if time_step is None else time_step,
+               "particle_step": ch.particle_step if particle_step is None else particle_step,
                "progress": progress, "force": force}
     too_near = near_bead(lay) if name == "shadowed" else None
     if too_near:  # outside the measured range: do not compute what would be silently wrong
@@ -359,10 +366,10 @@ def channel_response(scenario, model=None, *, memory=None, particles=None, seed=
         why = too_near or f"broke {'; '.join(problems)} on this layout"
         model_notes = [f"the shadowed model {why}: switched to the particle simulator"]
         fallback = dict(options)
-        if options["time_step"] is None and particle_step_count(lay, lags, None) > PARTICLE_STEP_LIMIT:
+        if options["particle_step"] is None and particle_step_count(lay, lags, None) > PARTICLE_STEP_LIMIT:
             # the automatic step near a very close emitter is tiny; the exact radial crossing correction keeps
             # coarser steps accurate (tests/test_particles.py), so cap the number of steps instead of refusing
-            fallback["time_step"] = (lags + 1) * lay.symbol_interval / PARTICLE_STEP_LIMIT
+            fallback["particle_step"] = (lags + 1) * lay.symbol_interval / PARTICLE_STEP_LIMIT
         hits, tail, stderr, more = _particles(lay, lags, fallback, lone)
         if lay.walls is not None:
             tail = recurrent_tail(lay, hits, tail, "particles")
@@ -393,3 +400,31 @@ def channel_response(scenario, model=None, *, memory=None, particles=None, seed=
     return ChannelResponse(hits=hits, tail=tail, stderr=stderr, model=name,
                            slot_edges=lay.symbol_interval * np.arange(lags + 2, dtype=np.float64),
                            notes=tuple(model_notes + notes))
+
+
+def _renamed_keyword(old: str, old_value, new: str, new_value):
+    """The value of a keyword argument of :func:`channel_response` given under its deprecated name ``old`` (with a
+    ``DeprecationWarning``) or its new name ``new``; both at once is an :class:`InputError`."""
+    if old_value is None:
+        return new_value
+    if new_value is not None:
+        raise InputError(old, old_value, f"is the old name of {new}, which is also given ({new_value!r})",
+                         f"pass only {new}=")
+    warnings.warn(f"channel_response({old}=...) is deprecated: pass {new}=... instead (same meaning and units)",
+                  DeprecationWarning, stacklevel=3)
+    return old_value
+
+
+def _check_particle_settings(particle_count, particle_step, symbol_interval: float) -> None:
+    """The particle-model overrides of :func:`channel_response`, named as its keywords (None: not given)."""
+    if particle_count is not None and (isinstance(particle_count, bool)
+                                       or not isinstance(particle_count, numbers.Integral) or particle_count < 1):
+        raise InputError("particle_count", particle_count, "must be a whole number of molecules >= 1",
+                         "pass e.g. particle_count=20000")
+    if particle_step is not None and (isinstance(particle_step, bool) or not isinstance(particle_step, numbers.Real)
+                                      or not 0.0 < float(particle_step) < float("inf")):
+        raise InputError("particle_step", particle_step, "must be a finite time step > 0 in seconds",
+                         "pass e.g. particle_step=1e-3, or leave it out for the automatic step")
+    if particle_step is not None and particle_step > symbol_interval:
+        raise InputError("particle_step", particle_step, f"is longer than the symbol_interval ({symbol_interval:g} s)",
+                         "pass a step well below the slot length, or leave it out for the automatic step")

@@ -23,11 +23,11 @@ DISPLAY = {
     "sample_offset": ("ms", 1e3, "s"),
     "reaction_rate": ("um/s", 1e6, "m/s"),
     "symbol_interval": ("ms", 1e3, "s"),
-    "time_step": ("ms", 1e3, "s"),
+    "particle_step": ("ms", 1e3, "s"),
     "background": ("counts per slot", 1.0, "counts per slot"),
     "memory": ("lags", 1.0, "lags"),
     "memory_tolerance": ("of a pair's largest slot", 1.0, "fraction"),
-    "particles": ("molecules per emitter", 1.0, "molecules"),
+    "particle_count": ("molecules per emitter", 1.0, "molecules"),
     "peak": ("molecules", 1.0, "molecules"),
     "budget": ("molecules per symbol", 1.0, "molecules"),
     "amplitudes": ("molecules", 1.0, "molecules"),
@@ -36,7 +36,7 @@ DISPLAY = {
 
 
 #: what a missing (None) value means, by field name
-NONE_MEANS = {"sample_offset": "none (the end of the slot)", "time_step": "none (automatic)",
+NONE_MEANS = {"sample_offset": "none (the end of the slot)", "particle_step": "none (automatic)",
               "budget": "none (no mean constraint)", "amplitudes": "none (from levels and peak)",
               "reaction_rate": "none (not a reactive receiver)"}
 

@@ -11,7 +11,7 @@ File layout (every quantity a plain SI number or a string with units, e.g. ``"5 
                   sample_offset (passive only; default: the end of the slot),
                   reaction_rate (reactive only: surface reaction rate, m/s, e.g. "20 um/s")
     [channel]     symbol_interval (required), memory (int or "auto"), memory_tolerance, background,
-                  counting, residual, response, particles, time_step, seed
+                  counting, residual, response, particle_count, particle_step, seed
     [signalling]  scheme, levels, peak, budget, emitter (name or index), silent, amplitudes   # optional
     [[wall]]      point = [x, y, z], normal = [nx, ny, nz] (pointing into the fluid), kind = "reflecting"
                   # optional: none, one wall (a half space) or two parallel walls facing each other (a channel)
@@ -19,6 +19,13 @@ File layout (every quantity a plain SI number or a string with units, e.g. ``"5 
 Unknown keys, wrong types and malformed units raise :class:`~capacity.errors.InputError` naming the entry
 (``receiver[0].radius``), the value and a fix; unknown keys and option names come with the nearest valid one.
 Value ranges and geometry are checked by :func:`capacity.scenario.validate.validate_scenario`.
+
+Renamed keys (:data:`RENAMED`): ``channel.particles`` is now ``channel.particle_count`` (it clashed with
+``response = "particles"``) and ``channel.time_step`` is now ``channel.particle_step``. Files with the old names
+load to the same scenario, with one :class:`ScenarioKeyWarning` per old key (a deprecation note naming the key
+and the fix); both names for one quantity is an :class:`InputError`. The command line prints these notes as
+``note:`` lines and does not count them as scenario warnings (``--strict`` ignores them: they say nothing about
+the physics).
 """
 
 from __future__ import annotations
@@ -27,6 +34,7 @@ import difflib
 import math
 import numbers
 import sys
+import warnings
 from os import PathLike
 
 from capacity.errors import InputError
@@ -47,7 +55,7 @@ if sys.version_info >= (3, 11):
 else:  # pragma: no cover
     import tomli as tomllib
 
-__all__ = ["load_scenario", "scenario_from_dict"]
+__all__ = ["RENAMED", "ScenarioKeyWarning", "load_scenario", "rename_deprecated_keys", "scenario_from_dict"]
 
 # [sweep] is read by capacity.sweep (the grid a file carries); the scenario itself ignores it
 _TOP = ("name", "medium", "emitter", "receiver", "channel", "signalling", "wall", "sweep")
@@ -63,11 +71,44 @@ _CHANNEL = (
     "counting",
     "residual",
     "response",
-    "particles",
-    "time_step",
+    "particle_count",
+    "particle_step",
     "seed",
 )
 _SIGNALLING = ("scheme", "levels", "peak", "budget", "emitter", "silent", "amplitudes")
+
+
+#: deprecated scenario keys, (table, old key) -> new key; the old names are read for one more release
+RENAMED = {("channel", "particles"): "particle_count", ("channel", "time_step"): "particle_step"}
+
+
+class ScenarioKeyWarning(FutureWarning):
+    """A scenario file uses a deprecated key name (:data:`RENAMED`); the message names the key and its new name.
+
+    A ``FutureWarning`` because scenario files are written by the people running the tool, who should see it
+    (Python shows it by default); the command line prints it as a ``note:`` line instead.
+    """
+
+
+def rename_deprecated_keys(data: dict, source: str = "<dict>") -> tuple[dict, list[str]]:
+    """``data`` (a scenario table) with the deprecated keys of :data:`RENAMED` renamed, and one note per key.
+
+    Returns ``data`` itself when nothing is renamed, otherwise a copy (the input is never changed). Raises
+    :class:`InputError` when a table gives a quantity under both its old and its new name.
+    """
+    notes = []
+    for (table, old), new in RENAMED.items():
+        section = data.get(table)
+        if not isinstance(section, dict) or old not in section:
+            continue
+        if new in section:
+            raise InputError(f"{table}.{old}", section[old],
+                             f"is the old name of {table}.{new}, which is also given ({section[new]!r})",
+                             f"keep only {table}.{new} (delete the {table}.{old} line)")
+        data = {**data, table: {(new if k == old else k): v for k, v in section.items()}}
+        notes.append(f"{table}.{old} in {source} is deprecated: rename it to {table}.{new} (same meaning and "
+                     "units; the old name will stop being read in a later release)")
+    return data, notes
 
 
 #: built-in scenarios, by the name that stands for them wherever a scenario file is asked for
@@ -131,7 +172,8 @@ def scenario_from_dict(data: dict, source: str = "<dict>") -> Scenario:
     """Build and validate a :class:`Scenario` from a dictionary shaped like a scenario file.
 
     ``source`` is only used in messages. Quantities may be SI numbers or unit strings; see the module docstring
-    for the keys.
+    for the keys. Deprecated key names (:data:`RENAMED`) are read under their new names, with one
+    :class:`ScenarioKeyWarning` each (an error in such a value names the key as written).
     """
     if not isinstance(data, dict):
         raise InputError(
@@ -140,6 +182,30 @@ def scenario_from_dict(data: dict, source: str = "<dict>") -> Scenario:
             "must be a table of scenario keys",
             "give a dictionary with name, medium, emitter, receiver and channel",
         )
+    renamed, notes = rename_deprecated_keys(data, source)
+    try:
+        scenario = _build(renamed, source)
+    except InputError as exc:
+        written = _as_written(exc, data)
+        if written is None:
+            raise
+        raise written from None
+    for note in notes:
+        warnings.warn(note, ScenarioKeyWarning, stacklevel=2)
+    return scenario
+
+
+def _as_written(exc: InputError, data: dict) -> InputError | None:
+    """``exc`` about a field the file gave under its deprecated name, naming that name; None for other fields."""
+    for (table, old), new in RENAMED.items():
+        section = data.get(table)
+        if exc.field == f"{table}.{new}" and isinstance(section, dict) and old in section:
+            return InputError(f"{table}.{old}", exc.value, exc.problem,
+                              f"{exc.fix}; and rename {table}.{old} to {table}.{new} (the old name is deprecated)")
+    return None
+
+
+def _build(data: dict, source: str) -> Scenario:
     _known(data, _TOP, "the top level of " + source, "")
     if "name" not in data:
         raise InputError("name", None, f"is missing from {source}", 'add a line such as name = "two receivers"')
@@ -353,9 +419,9 @@ def _channel(t: dict, n_rx: int) -> Channel:
         background = tuple(to_si(b, "count", f"{p}background[{k}]") for k, b in enumerate(background))
     else:
         background = (to_si(background, "count", p + "background"),) * n_rx
-    time_step = t.get("time_step")
-    if time_step is not None:
-        time_step = to_si(time_step, "time", p + "time_step")
+    step = t.get("particle_step")
+    if step is not None:
+        step = to_si(step, "time", p + "particle_step")
     return Channel(
         symbol_interval=ts,
         memory=memory,
@@ -364,8 +430,9 @@ def _channel(t: dict, n_rx: int) -> Channel:
         counting=_enum(t, "counting", p, COUNTING_LAWS, "poisson"),
         residual=_enum(t, "residual", p, RESIDUAL_RULES, "interference"),
         response=_enum(t, "response", p, RESPONSE_MODELS, "shadowed"),
-        particles=_integer(t.get("particles", 20000), p + "particles", "give a number of molecules such as 20000"),
-        time_step=time_step,
+        particle_count=_integer(t.get("particle_count", 20000), p + "particle_count",
+                                "give a number of molecules such as 20000"),
+        particle_step=step,
         seed=_integer(t.get("seed", 0), p + "seed", "give an integer seed such as 0"),
     )
 

@@ -63,7 +63,7 @@ def magnitude_warnings(s) -> list[str]:
             _check(out, f"distance emitter[{i}] -> receiver[{j}]", float(np.linalg.norm(em[i] - rc[j])), "length")
     ch = s.channel
     _check(out, "channel.symbol_interval", ch.symbol_interval, "time")
-    _check(out, "channel.time_step", ch.time_step, "time")
+    _check(out, "channel.particle_step", ch.particle_step, "time")
     if not out:
         out += _slot_warnings(s)
     return out

@@ -91,8 +91,10 @@ class Channel:
     residual : what happens to the mass counted after lag L: ``"interference"`` (added as mean interference)
         or ``"drop"``.
     response : default response model, ``"lone"`` | ``"shadowed"`` | ``"particles"``.
-    particles : molecules simulated per emitter by the particle model.
-    time_step : particle model step in seconds, ``None`` for automatic.
+    particle_count : molecules simulated per emitter by the particle model (scenario files before this name
+        said ``particles``, still read with a deprecation note).
+    particle_step : base time step of the particle model in seconds, ``None`` for automatic (formerly
+        ``time_step``).
     seed : integer seed for every random draw made for this scenario.
     """
 
@@ -103,8 +105,8 @@ class Channel:
     counting: str = "poisson"
     residual: str = "interference"
     response: str = "shadowed"
-    particles: int = 20000
-    time_step: float | None = None
+    particle_count: int = 20000
+    particle_step: float | None = None
     seed: int = 0
 
 

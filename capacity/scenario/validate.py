@@ -42,14 +42,14 @@ SCHEMES = ("amplitude", "spatial", "multiplex", "hybrid")
 MAX_MEMORY = 2000
 #: physically meaningful magnitudes (SI); outside them the closed forms overflow or lose all meaning.
 #: length: largest |coordinate| and radius, m; diffusion: (smallest, largest) m^2/s (solids ~1e-20 .. gases
-#: ~1e-5); degradation: (0, largest) 1/s (a lifetime of 1 ps); seed: numpy/JAX 64-bit seeds; particles and levels:
+#: ~1e-5); degradation: (0, largest) 1/s (a lifetime of 1 ps); seed: numpy/JAX 64-bit seeds; particle_count and levels:
 #: more than any simulation or alphabet could use
 LIMITS = {
     "length": 1e3,
     "diffusion": (1e-30, 1.0),
     "degradation": (0.0, 1e12),
     "seed": 2**63 - 1,
-    "particles": 10**9,
+    "particle_count": 10**9,
     "levels": 10**4,
     "velocity": 1.0,
 }
@@ -161,7 +161,7 @@ def validate_scenario(s: Scenario) -> Scenario:
     3-vectors; radii > 0; receiver kinds; ``sample_offset`` only for passive receivers and within
     (0, symbol_interval]; channel settings (symbol_interval > 0, memory an integer in [0, 2000] or ``"auto"``,
     memory_tolerance in (0, 1), background >= 0 with 1 or R entries, known counting/residual/response names,
-    particles > 0, 0 < time_step <= symbol_interval, seed >= 0); signalling (scheme, levels >= 2, peak > 0,
+    particle_count > 0, 0 < particle_step <= symbol_interval, seed >= 0); signalling (scheme, levels >= 2, peak > 0,
     0 < budget <= peak * E (the largest amplitude instead of the peak when explicit amplitudes are
     given; they override levels and peak), emitter index in range, amplitudes >= 0 and distinct);
     geometry: no emitter inside or on a receiver, no two receivers overlapping or touching.
@@ -413,19 +413,19 @@ def _check_channel(s: Scenario) -> None:
     _choice("channel.counting", c.counting, COUNTING_LAWS)
     _choice("channel.residual", c.residual, RESIDUAL_RULES)
     _choice("channel.response", c.response, RESPONSE_MODELS)
-    if not _is_int(c.particles) or not 0 < c.particles <= LIMITS["particles"]:
+    if not _is_int(c.particle_count) or not 0 < c.particle_count <= LIMITS["particle_count"]:
         raise InputError(
-            "channel.particles",
-            c.particles,
-            f"must be a positive integer up to {LIMITS['particles']:g}",
+            "channel.particle_count",
+            c.particle_count,
+            f"must be a positive integer up to {LIMITS['particle_count']:g}",
             "give a number of molecules to simulate such as 20000",
         )
-    if c.time_step is not None:
-        _positive("channel.time_step", c.time_step, 'give a time step such as "1 ms", or leave it out')
-        if c.time_step > c.symbol_interval:
+    if c.particle_step is not None:
+        _positive("channel.particle_step", c.particle_step, 'give a time step such as "1 ms", or leave it out')
+        if c.particle_step > c.symbol_interval:
             raise InputError(
-                "channel.time_step",
-                c.time_step,
+                "channel.particle_step",
+                c.particle_step,
                 f"is longer than the symbol_interval ({c.symbol_interval:g} s)",
                 "use a step well below the slot length, or leave it out for automatic",
             )
@@ -528,8 +528,8 @@ def geometry_warnings(s: Scenario) -> list[str]:
     Flags: an emitter closer to a receiver surface than 0.1 of its radius; two receivers closer than 0.1 of the
     smaller radius; a signal peak more than 5 slots after release (``hitting_peak_time`` of the gap for absorbing
     receivers, of the centre distance -- the peak of the concentration at the centre -- for passive ones); a
-    passive receiver sampling in the first 1% of the slot; a particle time_step above 0.1 of the earliest peak
-    time; and particles x emitters x (memory + 1) above 5e7 molecule-slots.
+    passive receiver sampling in the first 1% of the slot; a particle_step above 0.1 of the earliest peak
+    time; and particle_count x emitters x (memory + 1) above 5e7 molecule-slots.
     """
     out: list[str] = []
     em, rc, radii = s.emitter_positions, s.receiver_centres, s.receiver_radii
@@ -570,16 +570,16 @@ def geometry_warnings(s: Scenario) -> list[str]:
                 f"{r.sample_offset / ts:.2%} of the symbol_interval"
             )
     c = s.channel
-    if c.time_step is not None and c.time_step > _COARSE_STEP * earliest:
+    if c.particle_step is not None and c.particle_step > _COARSE_STEP * earliest:
         out.append(
-            f"the particle time_step ({c.time_step:.3g} s) is {c.time_step / earliest:.3g} of the earliest "
+            f"the particle_step ({c.particle_step:.3g} s) is {c.particle_step / earliest:.3g} of the earliest "
             f"peak time ({earliest:.3g} s); the step error of the particle model grows with this ratio"
         )
     if isinstance(c.memory, int):
-        work = float(c.particles) * len(s.emitters) * (c.memory + 1)
+        work = float(c.particle_count) * len(s.emitters) * (c.memory + 1)
         if work > _HEAVY_WORK:
             out.append(
-                f"particles x emitters x (memory + 1) = {work:.3g} molecule-slots for the particle model; "
+                f"particle_count x emitters x (memory + 1) = {work:.3g} molecule-slots for the particle model; "
                 "expect a long run"
             )
     return out
