@@ -1,8 +1,9 @@
 """Running the points: in this process, on a local Dask cluster, or on an existing one.
 
 ``open_cluster`` gives a ``dask.distributed.Client`` (a ``LocalCluster`` of one-thread worker processes by
-default, shut down on exit; or a connection to ``tcp://host:port``), ``run_points`` submits the points in a
-bounded window and hands each result to a callback as it completes, in whatever order. Every point carries its
+default, each bound to its own core (:mod:`capacity.sweep.cores`), shut down on exit; or a connection to
+``tcp://host:port``), ``run_points`` submits the points in a bounded window and hands each result to a callback
+as it completes, in whatever order. Every point carries its
 own seed, so the numbers do not depend on the number of workers or the order.
 """
 
@@ -29,12 +30,16 @@ CONNECT_TIMEOUT = 3.0
 _ADDRESS = re.compile(r"^(tcp|tls|inproc|ucx|ws|wss)://[^\s:/]+(:\d+)?$|^[^\s:/]+:\d+$")
 
 
+def _cores() -> list[int]:
+    try:
+        return sorted(os.sched_getaffinity(0))
+    except AttributeError:  # pragma: no cover  (not Linux)
+        return list(range(os.cpu_count() or 1))
+
+
 def default_workers() -> int:
     """One worker per core this process may use."""
-    try:
-        return max(len(os.sched_getaffinity(0)), 1)
-    except AttributeError:  # pragma: no cover  (not Linux)
-        return max(os.cpu_count() or 1, 1)
+    return max(len(_cores()), 1)
 
 
 @contextlib.contextmanager
@@ -77,6 +82,9 @@ def open_cluster(workers: int | None = None, scheduler: str | None = None):
                            silence_logs=logging.CRITICAL, env=dict(WORKER_ENV))
     client = Client(cluster, set_as_default=False)
     try:
+        from capacity.sweep.cores import OneCoreEach
+
+        client.register_plugin(OneCoreEach(_cores()), name="capacity-one-core-each")
         yield client
     finally:
         client.close()
