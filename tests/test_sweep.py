@@ -336,3 +336,163 @@ def test_in_process_run_gives_the_worker_numbers(reference, scenario_file, cache
     for pid, row in rows.items():
         for key in ("information_rate", "stderr", "lower_bound", "upper_bound", "bits_per_second", "seed"):
             assert here[pid][key] == row[key], (pid, key)
+
+
+# -- flow, reactive, pulse and wall fields -----------------------------------------------------------------------
+def _applied(scenario: str, text: str):
+    """The scenario loaded after one --vary value is written into its table (the sweep's own path)."""
+    import warnings
+
+    from capacity.scenario.load import scenario_from_dict
+    from capacity.sweep.fields import set_value
+    from capacity.sweep.spec import read_table
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # deprecated key names in the built-in files are not the point here
+        data, _ = read_table(scenario)
+        ax = parse_axis(text)
+        (value,) = ax.values
+        return scenario_from_dict(set_value(data, ax.field, list(value) if isinstance(value, tuple) else value))
+
+
+@pytest.mark.parametrize("scenario, text, read, expect", [
+    # SI values worked out by hand: 1 um/s = 1e-6 m/s, 1 cm/s = 1e-2 m/s, 1 ms = 1e-3 s, 1 um = 1e-6 m
+    ("channel_flow", "medium.flow=25um/s,0um/s,0um/s", lambda s: s.medium.flow, (25e-6, 0.0, 0.0)),
+    ("demo", "medium.flow[1]=0.003 cm/s", lambda s: s.medium.flow, (0.0, 30e-6, 0.0)),  # demo: no flow key
+    ("channel_flow", "medium.flow[0]=1e-5", lambda s: s.medium.flow, (1e-5, 0.0, 0.0)),  # bare number: SI
+    ("channel_flow", "receiver[0].reaction_rate=0.006 cm/s", lambda s: s.receivers[0].reaction_rate, 60e-6),
+    ("demo", "emitter[*].pulse=5ms", lambda s: tuple(e.pulse for e in s.emitters), (5e-3, 5e-3)),
+    ("demo", "emitter[1].pulse=0.02", lambda s: tuple(e.pulse for e in s.emitters), (0.0, 0.02)),
+    ("channel_flow", "wall[1].point[2]=12um", lambda s: s.walls[1].point, (0.0, 0.0, 12e-6)),
+    ("channel_flow", "wall[0].point=0um,0um,-8um", lambda s: s.walls[0].point, (0.0, 0.0, -8e-6)),
+    ("channel_flow", "wall[0].normal=0,0,2", lambda s: s.walls[0].normal, (0.0, 0.0, 2.0)),
+])
+def test_new_physics_fields_reach_the_loaded_scenario(scenario, text, read, expect):
+    assert read(_applied(scenario, text)) == pytest.approx(expect, rel=1e-12, abs=0.0)
+
+
+def test_new_physics_fields_labels_and_units():
+    ax = parse_axis("medium.flow[0]=0um/s:40um/s:3")
+    assert ax.label == "flow_x" and ax.field.kind == "velocity"
+    np.testing.assert_array_equal(ax.values, np.linspace(0.0, 40e-6, 3))  # reference: numpy.linspace in SI
+    assert parse_axis("wall[1].point[2]=8um,10um").label == "point_z"
+    ax = parse_axis("medium.flow=10um/s,0,0;40um/s,0,0")
+    assert ax.values == ((10e-6, 0.0, 0.0), (40e-6, 0.0, 0.0))
+    from capacity.sweep.grid import check_axes
+
+    both = check_axes([parse_axis("wall[0].point[2]=-10um"), parse_axis("wall[1].point[2]=10um")])
+    assert [a.label for a in both] == ["wall0_point_z", "wall1_point_z"]
+
+
+@pytest.mark.parametrize("text, expect", [
+    ("medium.flow[0]=40um", "is not velocity"),
+    ("medium.flow=40um/s,0um/s", "is not a vector x,y,z"),
+    ("receiver[0].reaction_rate=5 1/s", "is not velocity"),
+    ("emitter[0].pulse=5um", "is not time"),
+    ("wall[0].normal[2]=1um", "is not a number"),
+    ("medium.diffusion[0]=1", "is not a vector"),
+    ("medium.flow[3]=1um/s", "index is above 2"),
+    ("wall[0].nromal=0,0,1", 'did you mean "wall[0].normal"'),
+])
+def test_bad_physics_values_are_named_errors(text, expect):
+    with pytest.raises(InputError) as info:
+        parse_axis(text)
+    assert info.value.field == "--vary" and expect in str(info.value), str(info.value)
+
+
+def test_flow_across_a_wall_is_refused_by_the_loader_before_anything_runs(tmp_path):
+    # reference: the loader's own rule (a uniform flow must run parallel to the walls); channel_flow's walls are
+    # normal to z, so a z component is refused at that point, naming the point
+    with pytest.raises(InputError, match=r"medium\.flow\[2\]=1e-05.*invalid scenario.*across wall\[0\]"):
+        spec = make_spec("channel_flow", ["medium.flow[2]=0,10um/s"], measure="response")
+        run_sweep(spec, tmp_path / "never", workers=0, progress=False, plots=False, log=lambda t: None)
+    assert not (tmp_path / "never").exists()
+
+
+# -- the compare measure and an existing scheduler ---------------------------------------------------------------
+TWO = CHEAP.replace('''[[receiver]]''', '''[[emitter]]
+name = "tx2"
+position = ["0 um", "24 um", "0 um"]
+
+[[receiver]]
+name = "rx2"
+centre = ["10 um", "24 um", "0 um"]
+radius = "5 um"
+
+[[receiver]]''').replace('scheme = "amplitude"', 'scheme = "hybrid"').replace("peak = 100", "peak = 60")
+
+
+def test_compare_measure_equals_compare_schemes(cache_dir, tmp_path):
+    # reference: capacity.compare.compare_schemes called directly (the non-engine path, as `capacity compare`)
+    # on the same scenario with the point's seed; then each scheme's rate against its own bracket
+    from capacity.compare import compare_schemes
+    from capacity.physics.response import channel_response
+
+    path = tmp_path / "two.toml"
+    path.write_text(TWO)
+    spec = make_spec(str(path), ["signalling.budget=15,30"], measure="compare",
+                     settings={"symbols": 400, "runs": 2, "schemes": "amplitude,spatial"})
+    summary = run_sweep(spec, tmp_path / "cmp", workers=0, cache_dir=cache_dir, progress=False, plots=False,
+                        log=lambda t: None)
+    assert summary["points_computed"] == 2 and summary["points_failed"] == 0
+    rows = _rows(tmp_path / "cmp")
+    points = grid_points(spec.data, list(spec.axes), measure="compare", settings=spec.settings,
+                         base_seed=spec.base_seed)
+    for p in points:
+        row = rows[p.point_id]
+        assert int(row["seed"]) == p.seed
+        response = channel_response(p.scenario, None, seed=p.seed)
+        records = compare_schemes(p.scenario, response, ["amplitude", "spatial"], n_symbols=400, n_runs=2,
+                                  detector_symbols=400, seed=p.seed)
+        assert [r["scheme"] for r in records] == ["amplitude", "spatial"]
+        for rec in records:
+            s = rec["scheme"]
+            for key in ("information_rate", "stderr", "lower_bound", "upper_bound", "bits_per_second",
+                        "bits_per_molecule", "single_slot_capacity", "mean_molecules"):
+                assert float(row[f"{s}_{key}"]) == rec[key], (s, key)
+            for key in ("rate_method", "lower_bound_method", "upper_bound_method", "input_law"):
+                assert row[f"{s}_{key}"] == rec[key], (s, key)
+            tried = [d for d in rec["detectors"] if d.get("symbol_error_rate") is not None]
+            best = min(tried, key=lambda d: d["symbol_error_rate"])
+            assert row[f"{s}_best_detector"] == best["name"]
+            assert float(row[f"{s}_best_detector_ser"]) == best["symbol_error_rate"]
+            # the rate lies in its own bracket up to Monte Carlo noise: 4 standard errors of the difference
+            # between the rate and each bound (each bound keeps its own SE in the record)
+            d = rec["details"]
+            lo = d["lower_bounds"][row[f"{s}_lower_bound_method"]]
+            up = d["upper_bounds"][row[f"{s}_upper_bound_method"]]
+            rate, se = float(row[f"{s}_information_rate"]), float(row[f"{s}_stderr"])
+            assert lo["rate"] == float(row[f"{s}_lower_bound"]) and up["rate"] == float(row[f"{s}_upper_bound"])
+            assert lo["rate"] - 4 * np.hypot(se, lo["stderr"]) <= rate <= up["rate"] + 4 * np.hypot(se, up["stderr"])
+        top = max(records, key=lambda r: r["bits_per_second"])
+        assert row["best_scheme"] == top["scheme"] and float(row["best_bits_per_second"]) == top["bits_per_second"]
+
+
+def test_existing_scheduler_gives_the_serial_numbers_and_stays_up(reference, scenario_file, cache_dir, tmp_path):
+    # reference: the uninterrupted one-worker run; here a cluster started outside the sweep (as `dask scheduler` +
+    # `dask worker` would be) is given by its address, used, and left running
+    import logging
+
+    from distributed import Client, LocalCluster
+
+    from capacity.sweep.engine import WORKER_ENV
+
+    _, rows = reference
+    with LocalCluster(n_workers=1, threads_per_worker=1, processes=True, dashboard_address=None,
+                      scheduler_kwargs={"dashboard_address": "127.0.0.1:0"}, silence_logs=logging.CRITICAL,
+                      env=dict(WORKER_ENV)) as cluster:
+        spec = make_spec(str(scenario_file), [VARY[0], "signalling.budget=20"], settings=SETTINGS)
+        summary = run_sweep(spec, tmp_path, scheduler=cluster.scheduler_address, cache_dir=cache_dir,
+                            progress=False, plots=False, log=lambda t: None)
+        assert summary["points_computed"] == 3 and summary["points_failed"] == 0
+        got = _rows(tmp_path)
+        assert len(got) == 3 and set(got) <= set(rows)
+        for pid, row in got.items():
+            for key in ("information_rate", "stderr", "lower_bound", "upper_bound", "bits_per_second", "seed"):
+                assert row[key] == rows[pid][key], (pid, key)
+        record = json.loads((tmp_path / "sweep.json").read_text())
+        assert cluster.scheduler_address in json.dumps(record)
+        # the sweep closed its own client only: the scheduler and its worker still answer
+        with Client(cluster.scheduler_address, timeout="10s", set_as_default=False) as client:
+            assert len(client.scheduler_info()["workers"]) == 1
+            assert client.submit(sum, [1, 2], pure=False).result(timeout=30) == 3

@@ -26,7 +26,7 @@ def add_parser(sub) -> None:
     add_scenario_argument(p)
     p.add_argument("--vary", action="append", default=[], metavar="FIELD=VALUES",
                    help="a grid axis: FIELD=LO:HI:N[:log] or FIELD=v1,v2,... (repeat for more axes)")
-    p.add_argument("--measure", choices=("rate", "compare", "response"), default=None,
+    p.add_argument("--measure", choices=("rate", "compare", "response", "hits"), default=None,
                    help="what to compute at each point (default: the [sweep] table's, else rate)")
     p.add_argument("--out", required=True, metavar="DIR", help="folder of the sweep's files (resumed if it exists)")
     p.add_argument("--workers", type=int, metavar="N",

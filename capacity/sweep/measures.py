@@ -8,6 +8,8 @@ Three measures, each a small object in :data:`MEASURES`:
               each scheme's best detector.
 ``response``  :func:`capacity.channel_response` — per emitter-receiver pair: total captured, release-slot
               probability, the slot of the peak; the memory kept and the largest tail.
+``hits``      the same and every slot: the hit probability of each pair at each lag, its standard error
+              (particle model; NaN for the others) and the tail; needs a whole-number ``channel.memory``.
 
 ``evaluate`` is what a worker runs: it never raises, it returns the outputs or the error text, with the
 seconds taken.
@@ -35,7 +37,7 @@ def unit_of(output: str) -> str:
     for name in sorted(UNITS, key=len, reverse=True):
         if output == name or output.endswith("_" + name):
             return UNITS[name]
-    if output.startswith(("captured_", "release_slot_", "peak_hits_", "tail_")):
+    if output.startswith(("captured_", "release_slot_", "peak_hits_", "tail_", "hits_")):
         return "probability"
     if output.startswith("peak_slot_"):
         return "slot"
@@ -102,8 +104,13 @@ class CompareMeasure:
 
     name = "compare"
     defaults = {"model": None, "n_symbols": 10_000, "n_runs": 4, "schemes": None}
+    #: per scheme: the columns of ``capacity compare``'s CSV (after scheme and budget), then its best detector
+    #: (lowest symbol error rate) with that error rate and its hard-decision rate (bits/symbol)
     _PER = ("information_rate", "stderr", "lower_bound", "upper_bound", "bits_per_second", "bits_per_molecule",
-            "single_slot_capacity", "best_detector", "best_detector_ser")
+            "single_slot_capacity", "mean_molecules", "certified_gap", "rate_method", "input_law",
+            "lower_bound_method", "upper_bound_method", "bracket_relative", "flag", "best_detector",
+            "best_detector_ser", "best_detector_rate")
+    _RECORD = _PER[:-3]
 
     def schemes(self, scenario, settings) -> list[str]:
         from capacity.compare import applicable_schemes
@@ -134,12 +141,13 @@ class CompareMeasure:
         out = {"model": response.model}
         for rec in records:
             s = rec["scheme"]
-            for k in self._PER[:7]:
-                out[f"{s}_{k}"] = rec[k]
+            for k in self._RECORD:
+                out[f"{s}_{k}"] = float("nan") if rec[k] is None else rec[k]
             tried = [d for d in rec["detectors"] if d.get("symbol_error_rate") is not None]
             best = min(tried, key=lambda d: d["symbol_error_rate"]) if tried else None
             out[f"{s}_best_detector"] = best["name"] if best else ""
             out[f"{s}_best_detector_ser"] = best["symbol_error_rate"] if best else float("nan")
+            out[f"{s}_best_detector_rate"] = best["rate"] if best else float("nan")
         top = max(records, key=lambda r: r["bits_per_second"])
         out["best_scheme"] = top["scheme"]
         out["best_bits_per_second"] = top["bits_per_second"]
@@ -165,11 +173,15 @@ class ResponseMeasure:
                                           if o.startswith("captured_e")])]
 
     def __call__(self, scenario, settings, seed) -> dict:
-        import numpy as np
-
         from capacity.physics.response import channel_response
 
-        response = channel_response(scenario, settings["model"], seed=seed)
+        return self.summary(channel_response(scenario, settings["model"], seed=seed))
+
+    @staticmethod
+    def summary(response) -> dict:
+        """The measure's columns of one :class:`capacity.ChannelResponse`."""
+        import numpy as np
+
         hits, tail = np.asarray(response.hits), np.asarray(response.tail)
         out = {}
         for i in range(hits.shape[0]):
@@ -186,7 +198,46 @@ class ResponseMeasure:
         return out
 
 
-MEASURES = {m.name: m for m in (RateMeasure(), CompareMeasure(), ResponseMeasure())}
+class HitsMeasure(ResponseMeasure):
+    """The whole response, slot by slot (for comparing models point by point, e.g. shadowed against particles):
+    the ``response`` columns, then ``hits_e{i}_r{j}_l{l}`` (probability of a hit in slot l after a release of
+    emitter i at receiver j), ``hits_se_e{i}_r{j}_l{l}`` (its standard error: particle model only, else NaN) and
+    ``tail_e{i}_r{j}`` (probability of arriving after slot L)."""
+
+    name = "hits"
+
+    def outputs(self, scenario, settings) -> list[str]:
+        from capacity.errors import InputError
+
+        memory = scenario.channel.memory
+        if isinstance(memory, str) or isinstance(memory, bool):
+            raise InputError("channel.memory", memory, "--measure hits stores every slot, so the number of slots "
+                             "must be known before the sweep starts", "give a whole number of lags, e.g. memory = "
+                             "12 (or use --measure response)")
+        pairs = [f"e{i}_r{j}" for i in range(len(scenario.emitters)) for j in range(len(scenario.receivers))]
+        slots = [f"{k}_{p}_l{lag}" for k in ("hits", "hits_se") for p in pairs for lag in range(int(memory) + 1)]
+        return super().outputs(scenario, settings) + slots + [f"tail_{p}" for p in pairs]
+
+    def __call__(self, scenario, settings, seed) -> dict:
+        import numpy as np
+
+        from capacity.physics.response import channel_response
+
+        response = channel_response(scenario, settings["model"], seed=seed)
+        out = self.summary(response)
+        hits, tail = np.asarray(response.hits), np.asarray(response.tail)
+        se = np.full(hits.shape, np.nan) if response.stderr is None else np.asarray(response.stderr)
+        for i in range(hits.shape[0]):
+            for j in range(hits.shape[1]):
+                p = f"e{i}_r{j}"
+                for lag in range(hits.shape[2]):
+                    out[f"hits_{p}_l{lag}"] = float(hits[i, j, lag])
+                    out[f"hits_se_{p}_l{lag}"] = float(se[i, j, lag])
+                out[f"tail_{p}"] = float(tail[i, j])
+        return out
+
+
+MEASURES = {m.name: m for m in (RateMeasure(), CompareMeasure(), ResponseMeasure(), HitsMeasure())}
 
 _CONFIGURED = {}
 
