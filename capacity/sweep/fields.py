@@ -38,8 +38,8 @@ KINDS: dict[tuple[str, str], str] = {
     ("channel", "counting"): "word",
     ("channel", "residual"): "word",
     ("channel", "response"): "word",
-    ("channel", "particles"): "int",
-    ("channel", "time_step"): "time",
+    ("channel", "particle_count"): "int",
+    ("channel", "particle_step"): "time",
     ("channel", "seed"): "int",
     ("signalling", "scheme"): "word",
     ("signalling", "levels"): "int",
@@ -111,7 +111,12 @@ def known_paths() -> list[str]:
 
 
 def parse_field(path: str, option: str = "--vary") -> Field:
-    """Parse a dotted path; an unknown one raises :class:`InputError` naming ``option`` with the nearest path."""
+    """Parse a dotted path; an unknown one raises :class:`InputError` naming ``option`` with the nearest path.
+
+    The old names of renamed keys (``channel.particles``, ``channel.time_step``:
+    :data:`capacity.scenario.load.RENAMED`) are refused with the new path as the fix: scenario files keep being
+    read under the old names for a while, but a grid axis is named afresh each run, and its name becomes a column
+    of the sweep's files."""
     text = path.strip()
     m = _SECTION.match(text)
     if m and (m.group(1), m.group(2)) in KINDS:
@@ -122,8 +127,12 @@ def parse_field(path: str, option: str = "--vary") -> Field:
         table, index, key, comp = m.group(1), m.group(2), m.group(3), m.group(4)
         index = index if index == "*" else int(index)
         return Field(text, table, index, key, _component(table, key, comp, path, option))
-    from capacity.scenario.load import _nearest
+    from capacity.scenario.load import RENAMED, _nearest
 
+    for (table, old), new in RENAMED.items():
+        if text == f"{table}.{old}":
+            raise InputError(option, path, f"{table}.{old} was renamed {table}.{new}",
+                             f"vary {table}.{new} instead (same meaning and units)")
     generic = re.sub(r"\[(\d+|\*)\]", "[0]", text)
     close = _nearest(generic, known_paths(), cutoff=0.5)
     hint = f'did you mean "{close}"? ' if close else ""

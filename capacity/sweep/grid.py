@@ -26,6 +26,10 @@ from capacity.units import DIMENSIONS, to_si
 MAX_POINTS = 100_000
 #: bump when the meaning of a point's numbers changes, so old stores are not mistaken for new ones
 ID_VERSION = 1
+#: scenario fields renamed since version 1 -> the name the ids were first computed with. A rename changes no
+#: number, so the id record keeps the first name: stores written before the rename stay valid, and the seeds
+#: (drawn from the ids) stay the same
+_ID_NAMES = {"particle_count": "particles", "particle_step": "time_step"}
 _WORDS_TRUE = {"true", "yes", "on", "1"}
 _WORDS_FALSE = {"false", "no", "off", "0"}
 
@@ -225,8 +229,9 @@ def point_id(scenario, measure: str, settings: dict) -> str:
     """16 hex digits of SHA-256 over the validated scenario (SI numbers), the measure and its settings.
 
     Equal scenarios give equal ids however their values were written (``"50 ms"`` or ``0.05``)."""
-    record = {"version": ID_VERSION, "scenario": dataclasses.asdict(scenario), "measure": measure,
-              "settings": settings}
+    fields = dataclasses.asdict(scenario)
+    fields["channel"] = {_ID_NAMES.get(k, k): v for k, v in fields["channel"].items()}
+    record = {"version": ID_VERSION, "scenario": fields, "measure": measure, "settings": settings}
     text = json.dumps(record, sort_keys=True, separators=(",", ":"), allow_nan=True)
     return hashlib.sha256(text.encode()).hexdigest()[:16]
 

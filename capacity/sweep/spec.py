@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import dataclasses
 import sys
+import warnings
 
 from capacity.errors import InputError
 from capacity.sweep.grid import Axis, check_axes, parse_axis
@@ -47,13 +48,15 @@ class SweepSpec:
 
 
 def read_table(scenario: str) -> tuple[dict, str]:
-    """The TOML table of a scenario file or built-in name, after the loader has accepted it."""
-    from capacity.scenario.load import BUILTIN, builtin_path, load_scenario
+    """The TOML table of a scenario file or built-in name, after the loader has accepted it, with deprecated key
+    names (:data:`capacity.scenario.load.RENAMED`) renamed (the loader has given its note about them)."""
+    from capacity.scenario.load import BUILTIN, builtin_path, load_scenario, rename_deprecated_keys
 
     load_scenario(scenario)  # the loader's own messages for an unreadable or invalid file
     path = builtin_path(scenario) if scenario in BUILTIN else scenario
     with open(path, "rb") as fh:
-        return tomllib.loads(fh.read().decode("utf-8")), str(scenario)
+        table = tomllib.loads(fh.read().decode("utf-8"))
+    return rename_deprecated_keys(table, str(scenario))[0], str(scenario)
 
 
 def _file_axes(table) -> list[str]:
@@ -75,7 +78,12 @@ def make_spec(scenario: str | dict, vary=(), *, measure: str | None = None, sett
     texts and settings (keys of :data:`SETTING_NAMES`); the scenario's own ``[sweep]`` table is merged under
     them. Raises :class:`InputError` naming the option (``--vary``, ``--measure``...) for bad input."""
     if isinstance(scenario, dict):
-        data, src = dict(scenario), source or "<dict>"
+        from capacity.scenario.load import ScenarioKeyWarning, rename_deprecated_keys
+
+        src = source or "<dict>"
+        data, notes = rename_deprecated_keys(dict(scenario), src)  # the points are built from the new names
+        for note in notes:
+            warnings.warn(note, ScenarioKeyWarning, stacklevel=2)
     else:
         data, src = read_table(scenario)
     table = data.pop("sweep", {}) or {}
