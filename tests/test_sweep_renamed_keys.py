@@ -85,3 +85,23 @@ def test_point_ids_and_seeds_survive_the_rename():
                          settings=record["settings"], base_seed=record["base_seed"])
     assert len(points) == len(stored) == 25
     assert {p.point_id: p.seed for p in points} == stored
+
+
+def test_cli_sweep_prints_the_note_once_and_refuses_the_old_path(tmp_path, capsys):
+    from capacity.cli import main
+
+    path = tmp_path / "old.toml"
+    path.write_text(OLD_NAMES)
+    with warnings.catch_warnings(record=True) as escaped:
+        warnings.simplefilter("always")
+        code = main(["sweep", str(path), "--measure", "response", "--vary", "channel.particle_count=100,200",
+                     "--out", str(tmp_path / "out"), "--workers", "0", "--no-plots", "--strict"])
+    err = capsys.readouterr().err
+    assert code == 0  # --strict: a renamed key is no warning about the physics
+    assert not [w for w in escaped if issubclass(w.category, ScenarioKeyWarning)]  # printed by the CLI instead
+    notes = [line for line in err.splitlines() if line.startswith("note: ")]
+    assert [n.split(" is deprecated")[0] for n in notes] == [f"note: channel.particles in {path}",
+                                                            f"note: channel.time_step in {path}"]
+    assert main(["sweep", str(path), "--vary", "channel.particles=100,200", "--out", str(tmp_path / "x")]) == 2
+    assert "--vary = 'channel.particles': channel.particles was renamed channel.particle_count" in \
+        capsys.readouterr().err

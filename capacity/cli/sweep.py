@@ -56,6 +56,9 @@ def add_parser(sub) -> None:
 
 
 def run(args) -> int:
+    import warnings
+
+    from capacity.scenario.load import ScenarioKeyWarning
     from capacity.sweep.run import run_sweep
     from capacity.sweep.spec import make_spec
 
@@ -68,8 +71,10 @@ def run(args) -> int:
     settings = {"symbols": args.symbols, "runs": args.runs, "bound_samples": args.bound_samples,
                 "window_samples": args.window_samples, "model": args.model, "schemes": args.schemes,
                 "law_search": False if args.no_law_search else None}
-    spec = make_spec(args.scenario, args.vary, measure=args.measure, settings=settings, seed=args.seed,
-                     force=args.force)
+    with warnings.catch_warnings():  # notes about renamed keys: printed once, by load() below
+        warnings.simplefilter("ignore", ScenarioKeyWarning)
+        spec = make_spec(args.scenario, args.vary, measure=args.measure, settings=settings, seed=args.seed,
+                         force=args.force)
     load(args.scenario, strict=getattr(args, "strict", False), announce=not quiet)  # the base scenario's warnings
 
     def log(text):
