@@ -496,3 +496,27 @@ def test_existing_scheduler_gives_the_serial_numbers_and_stays_up(reference, sce
         with Client(cluster.scheduler_address, timeout="10s", set_as_default=False) as client:
             assert len(client.scheduler_info()["workers"]) == 1
             assert client.submit(sum, [1, 2], pure=False).result(timeout=30) == 3
+
+
+def test_hits_measure_holds_every_slot_of_the_response(scenario_file, cache_dir, tmp_path):
+    # reference: capacity.channel_response called directly (lone closed forms) at each point
+    from capacity.physics.response import channel_response
+
+    spec = make_spec(str(scenario_file), ["receiver[0].radius=3um,5um"], measure="hits")
+    run_sweep(spec, tmp_path / "hits", workers=0, cache_dir=cache_dir, progress=False, plots=False,
+              log=lambda t: None)
+    rows = _rows(tmp_path / "hits")
+    for p in grid_points(spec.data, list(spec.axes), measure="hits", settings=spec.settings,
+                         base_seed=spec.base_seed):
+        response = channel_response(p.scenario)
+        row = rows[p.point_id]
+        for lag in range(2):  # memory = 1 in this scenario
+            assert float(row[f"hits_e0_r0_l{lag}"]) == response.hits[0, 0, lag]
+            assert row[f"hits_se_e0_r0_l{lag}"] == "nan"  # the lone model has no Monte Carlo error
+        assert float(row["tail_e0_r0"]) == response.tail[0, 0]
+    path = tmp_path / "auto.toml"
+    path.write_text(CHEAP.replace("memory = 1", 'memory = "auto"'))
+    with pytest.raises(InputError, match="channel.memory.*--measure hits"):
+        run_sweep(make_spec(str(path), ["receiver[0].radius=3um"], measure="hits"), tmp_path / "never", workers=0,
+                  progress=False, plots=False, log=lambda t: None)
+    assert not (tmp_path / "never").exists()
