@@ -30,7 +30,7 @@ fuzz: $(STAMP)
 	$(BIN)/python benchmarks/fuzz.py --minutes 10
 
 studies: $(STAMP)
-	$(BIN)/python studies/validate_responses.py
+	$(BIN)/python studies/validate_responses.py --particles 1000000
 	$(BIN)/python studies/best_symbol_interval.py
 	$(BIN)/python studies/schemes_vs_budget.py
 	$(BIN)/python studies/layout_sweep.py
