@@ -520,3 +520,23 @@ def test_hits_measure_holds_every_slot_of_the_response(scenario_file, cache_dir,
         run_sweep(make_spec(str(path), ["receiver[0].radius=3um"], measure="hits"), tmp_path / "never", workers=0,
                   progress=False, plots=False, log=lambda t: None)
     assert not (tmp_path / "never").exists()
+
+
+@pytest.mark.slow
+def test_schemes_study_quick_run_and_resume(tmp_path):
+    # the study on the engine: its files with the schema-2 columns; a second run computes nothing and rewrites
+    # the same table (reference: the first run's own files)
+    cmd = [sys.executable, str(REPO / "studies" / "schemes_vs_budget.py"), "--quick", "--out", str(tmp_path)]
+    subprocess.run(cmd, check=True, cwd=REPO, timeout=1200, capture_output=True)
+    for name in ("table.csv", "table.md", "curves.csv", "curves.png", "curves_per_second.png", "schemes.json"):
+        assert (tmp_path / name).stat().st_size > 0, name
+    with open(tmp_path / "curves.csv", newline="") as fh:
+        curves = list(csv.DictReader(fh))
+    assert len(curves) == 4 * 3 and {"single_slot_capacity", "rate_method", "lower_bound_method",
+                                     "upper_bound_method"} <= set(curves[0])
+    table = (tmp_path / "table.csv").read_text()
+    again = subprocess.run(cmd, check=True, cwd=REPO, timeout=600, capture_output=True, text=True)
+    assert "1 of 1 points already" in again.stderr and "12 of 12 points already" in again.stderr
+    assert (tmp_path / "table.csv").read_text() == table
+    record = json.loads((tmp_path / "schemes.json").read_text())
+    assert record["results"]["sweeps"]["budget_sweep"]["points_computed"] == 0
