@@ -28,7 +28,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 from _record import write_record  # noqa: E402
 
 #: the budget grid (molecules per symbol, log spacing) and the simulation lengths of the full and quick runs
-FULL = {"budgets": (3.0, 120.0, 9), "table_symbols": 10_000, "curve_symbols": 5_000, "runs": 4}
+FULL = {"budgets": (3.0, 120.0, 11), "table_symbols": 10_000, "curve_symbols": 5_000, "runs": 4}
 QUICK = {"budgets": (3.0, 120.0, 3), "table_symbols": 1_000, "curve_symbols": 1_000, "runs": 2}
 #: columns of table.csv: ``capacity compare``'s CSV names, then the best detector
 TABLE_FIELDS = ("scheme", "budget", "mean_molecules", "single_slot_capacity", "certified_gap", "information_rate",
@@ -76,7 +76,7 @@ def main(argv=None) -> int:
                            settings={"symbols": cfg["curve_symbols"], "runs": cfg["runs"]})
     curve_summary = run_sweep(curve_spec, out / "budget_sweep", workers=args.workers, plots=False)
 
-    table = _table_rows(out / "at_budget" / "points.csv", schemes)
+    table = _table_rows(out / "at_budget" / "points.csv", _ids(table_spec), schemes)
     _write_csv(out / "table.csv", TABLE_FIELDS, table)
     lines = _table_md(table)
     (out / "table.md").write_text(
@@ -88,7 +88,7 @@ def main(argv=None) -> int:
         + "\n".join(lines) + "\n")
     print("\n".join(lines))
 
-    curve_rows = _curve_rows(out / "budget_sweep" / "points.csv", schemes)
+    curve_rows = _curve_rows(out / "budget_sweep" / "points.csv", _ids(curve_spec), schemes)
     _write_csv(out / "curves.csv", CURVE_FIELDS, curve_rows)
     curves = _curves(curve_rows, schemes, scenario.channel.symbol_interval)
     from capacity.report.plots import plot_rate_curves
@@ -113,11 +113,20 @@ def main(argv=None) -> int:
     return 1 if table_summary["points_failed"] or curve_summary["points_failed"] else 0
 
 
-def _read(path: Path) -> list[dict]:
+def _ids(spec) -> set[str]:
+    """Point ids of this run's grid (a folder may also hold points of an earlier grid or version)."""
+    from capacity.sweep.run import plan
+
+    return {p.point_id for p in plan(spec)[0]}
+
+
+def _read(path: Path, ids: set[str]) -> list[dict]:
+    """The rows of ``points.csv`` whose point is in ``ids``, numbers parsed back (exactly: written with repr)."""
     from capacity.sweep.store import parse_cell
 
     with open(path, newline="") as fh:
-        return [{k: (v if k == "point_id" else parse_cell(v)) for k, v in row.items()} for row in csv.DictReader(fh)]
+        return [{k: (v if k == "point_id" else parse_cell(v)) for k, v in row.items()} for row in csv.DictReader(fh)
+                if row["point_id"] in ids]
 
 
 def _text(value) -> str:
@@ -125,9 +134,9 @@ def _text(value) -> str:
     return value if isinstance(value, str) else ""
 
 
-def _table_rows(path: Path, schemes) -> list[dict]:
+def _table_rows(path: Path, ids, schemes) -> list[dict]:
     """One row per scheme from the compare point (a single point: the scenario's budget)."""
-    (point,) = _read(path)
+    (point,) = _read(path, ids)
     rows = []
     for s in schemes:
         row = {"scheme": s, "budget": point["budget"]}
@@ -153,10 +162,10 @@ def _table_md(rows) -> list[str]:
     return lines
 
 
-def _curve_rows(path: Path, schemes) -> list[dict]:
+def _curve_rows(path: Path, ids, schemes) -> list[dict]:
     """The rate sweep's points, by scheme (in the order of ``schemes``) and budget."""
     rows = []
-    for p in _read(path):
+    for p in _read(path, ids):
         row = {k: p[k] for k in CURVE_FIELDS}
         for key in ("rate_method", "input_law", "lower_bound_method", "upper_bound_method", "flag", "model"):
             row[key] = _text(row[key])
