@@ -127,8 +127,12 @@ def _layout_points(name: str, spec: dict, out: Path, particles: int, memory: int
     summary = run_sweep(sweep, folder, workers=workers, plots=False)
     if summary["points_failed"]:
         raise RuntimeError(f"{name}: {summary['failed']}")
+    from capacity.sweep.run import plan
+
+    ids = {p.point_id for p in plan(sweep)[0]}  # the folder may also hold points of other settings
     with open(folder / "points.csv", newline="") as fh:
-        rows = {r["response"]: {k: parse_cell(v) for k, v in r.items()} for r in csv.DictReader(fh)}
+        rows = {r["response"]: {k: parse_cell(v) for k, v in r.items()} for r in csv.DictReader(fh)
+                if r["point_id"] in ids}
     return rows
 
 
