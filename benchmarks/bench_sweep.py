@@ -6,7 +6,7 @@ timed runs start alike. Baseline: the 1-worker run in the same process. Reported
 >= 1.7 on 2 cores), the points' own compute seconds, the overhead per point ((wall x workers - compute) / points:
 cluster start, scheduling, storing), and the load average of the machine before and after (other work on the
 same cores lowers the speed-up; ``cpu_share`` = the points' CPU seconds / their wall seconds shows how much of
-a core each worker really had). Both runs must give identical numbers (same ids, same seeds).
+a core each worker really had). The 1- and 2-worker runs must give identical numbers (same ids, same seeds).
 
 Local workers are bound to one core each (``capacity.sweep.cores``), so "1 worker" means one core. For context
 the same points are also run in this process (``workers=0``, no cluster, JAX free to use both cores as it
@@ -59,14 +59,16 @@ def run() -> dict:
         one = _timed(spec, Path(tmp) / "one", 1, cache)
         two = _timed(spec, Path(tmp) / "two", 2, cache)
         here = _timed(spec, Path(tmp) / "here", 0, cache)
-    same = all(one["rows"][k]["information_rate"] == two["rows"][k]["information_rate"]
-               == here["rows"][k]["information_rate"] for k in one["rows"])
+    same = all(one["rows"][k]["information_rate"] == two["rows"][k]["information_rate"] for k in one["rows"])
+    # in this process XLA splits reductions over both cores, the workers over one: equal up to round-off only
+    drift = max(abs(float(here["rows"][k]["information_rate"]) / float(one["rows"][k]["information_rate"]) - 1.0)
+                for k in one["rows"])
     for r in (one, two, here):
         r.pop("rows")
     return {"scenario": SCENARIO.name, "vary": VARY, "settings": SETTINGS, "one_worker": one, "two_workers": two,
             "in_process": here, "speedup": round(one["wall_seconds"] / two["wall_seconds"], 3),
             "target_speedup": 1.7, "speedup_vs_in_process": round(here["wall_seconds"] / two["wall_seconds"], 3),
-            "identical_numbers": same, "cores": os.cpu_count(),
+            "identical_numbers": same, "in_process_max_relative_difference": drift, "cores": os.cpu_count(),
             "load_average_before": [round(x, 2) for x in load_before],
             "load_average_after": [round(x, 2) for x in os.getloadavg()]}
 

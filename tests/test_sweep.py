@@ -328,14 +328,17 @@ def test_unreachable_scheduler_is_a_named_error_within_10_s(scenario_file, tmp_p
 
 @pytest.mark.slow
 def test_in_process_run_gives_the_worker_numbers(reference, scenario_file, cache_dir, tmp_path):
-    # reference: the one-worker run (single-threaded XLA); here the points run in the test process
+    # reference: the one-worker run (XLA on the one core the worker is bound to); here the points run in the test
+    # process, where XLA splits sums over every core: the same seeds and estimators, so equal up to round-off
+    # (the sweep benchmark saw relative differences up to 3e-14), never a different Monte Carlo draw
     _, rows = reference
     spec = make_spec(str(scenario_file), VARY, settings=SETTINGS)
     run_sweep(spec, tmp_path, workers=0, cache_dir=cache_dir, progress=False, plots=False, log=lambda t: None)
     here = _rows(tmp_path)
     for pid, row in rows.items():
-        for key in ("information_rate", "stderr", "lower_bound", "upper_bound", "bits_per_second", "seed"):
-            assert here[pid][key] == row[key], (pid, key)
+        assert here[pid]["seed"] == row["seed"]
+        for key in ("information_rate", "stderr", "lower_bound", "upper_bound", "bits_per_second"):
+            assert float(here[pid][key]) == pytest.approx(float(row[key]), rel=1e-12, abs=1e-15), (pid, key)
 
 
 # -- flow, reactive, pulse and wall fields -----------------------------------------------------------------------
