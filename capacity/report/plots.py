@@ -78,10 +78,10 @@ def plot_rate_curves(curves, path, *, per_second: bool = False, title: str | Non
     """Rate-versus-budget curves, one line per scheme, bounds as a shaded band, logarithmic budget axis.
 
     curves : dict scheme -> dict with arrays ``budget`` (molecules/symbol), ``rate``, ``lower``, ``upper``,
-        ``isi_free`` (all bits per symbol), and the float ``symbol_interval`` (s).
+        ``single_slot`` (all bits per symbol), and the float ``symbol_interval`` (s).
     """
     plt = _pyplot()
-    fig, ax = plt.subplots(figsize=(3.5, 2.8))
+    fig, ax = plt.subplots(figsize=(5.6, 2.8))  # the legend beside the axes, off the curves
     for k, (name, c) in enumerate(curves.items()):
         scale = 1.0 / c["symbol_interval"] if per_second else 1.0
         b = np.asarray(c["budget"], dtype=float)
@@ -93,11 +93,11 @@ def plot_rate_curves(curves, path, *, per_second: bool = False, title: str | Non
         ax.plot(b, np.asarray(c["single_slot"]) * scale, linestyle="none", marker=st["marker"], markersize=3.5,
                 markerfacecolor="none", markeredgecolor=st["color"], markeredgewidth=0.7)
     _log_axis(ax)
-    ax.set_xlabel("mean molecules per symbol")
+    ax.set_xlabel("budget (mean molecules per symbol)")
     ax.set_ylabel("bits per second" if per_second else "bits per symbol")
     ax.grid(alpha=0.3, which="both")
-    ax.legend(fontsize=7, title="filled: rate with ISI, band: its bounds\nhollow: single-slot capacity "
-              "(later arrivals ignored)", title_fontsize=5.5)
+    ax.legend(fontsize=7, loc="center left", bbox_to_anchor=(1.02, 0.5), title_fontsize=5.5,
+              title="filled: rate with ISI\nband: its bounds\nhollow: single-slot capacity\n(later arrivals ignored)")
     if title:
         ax.set_title(title, fontsize=8)
     return save_figure(fig, path, dpi=200, footer=title)
