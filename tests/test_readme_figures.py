@@ -55,8 +55,10 @@ def test_symbol_interval_study():
     _check([(float(r60["bits_per_second"]), q[0]), (float(r60["stderr"]) / ts, q[1]),
             (float(r60["information_rate"]), q[2]), (float(r60["lower_bound"]), q[3]),
             (float(r60["upper_bound"]), q[4]), (100 * float(r60["bracket_relative"]), q[5])])
-    q = _quoted(r"then ([\d.]+) bits/s at 90 ms .*?, ([\d.]+) at 134 ms .*?, ([\d.]+) at 200 ms .*? and ([\d.]+) at\s+1 s")
-    _check([(float(_interval_row(rows, t)["bits_per_second"]), v) for t, v in zip((0.09, 0.134, 0.2, 1.0), q)])
+    q = _quoted(r"then ([\d.]+) bits/s at 90 ms .*?, ([\d.]+) at 134 ms .*?, ([\d.]+) at 200 ms .*? and "
+                r"([\d.]+) at\s+1 s")
+    _check([(float(_interval_row(rows, t)["bits_per_second"]), v)
+            for t, v in zip((0.09, 0.134, 0.2, 1.0), q, strict=True)])
     q = _quoted(r"Bits per molecule rise with the interval, to ([\d.]+) at 1 s")
     _check([(float(_interval_row(rows, 1.0)["bits_per_molecule"]), q[0])])
 
@@ -65,7 +67,8 @@ def test_layout_study_table():
     rows = _rows("results/layout_sweep/points.csv")
     # the README's distance is the beads' distance from the line of the senders: the x of their centres
     table = {(round(float(r["centre_x"]) * 1e6, 6), round(float(r["radius"]) * 1e6, 6)): r for r in rows}
-    head = _quoted(r"\| distance \(µm\) \\ radius \(µm\) \| ([\d.]+) \| ([\d.]+) \| ([\d.]+) \| ([\d.]+) \| ([\d.]+) \|")
+    head = _quoted(r"\| distance \(µm\) \\ radius \(µm\) \| ([\d.]+) \| ([\d.]+) \| ([\d.]+) \| ([\d.]+) \| "
+                   r"([\d.]+) \|")
     radii = [float(h) for h in head]
     checked = 0
     for line in README.splitlines():
@@ -73,7 +76,7 @@ def test_layout_study_table():
         if not m:
             continue
         distance = float(m.group(1))
-        for radius, cell in zip(radii, m.groups()[1:]):
+        for radius, cell in zip(radii, m.groups()[1:], strict=True):
             row = table[(distance, radius)]
             _check([(float(row["bits_per_second"]), cell.strip("*"))])
             checked += 1
@@ -101,8 +104,8 @@ def test_near_bead_table():
     rows = {r["gap_radii"]: r for r in _rows("results/validation/near_bead.csv")}
     checked = 0
     for line in README.splitlines():
-        m = re.match(r"\s*\| ([\d.]+) / ([\d.]+) \| ([\d.]+) / ([\d.]+) \| (−?[\d.]+) / ([\d.]+) ± ([\d.]+) \| ([\d.]+) \|",
-                     line)
+        m = re.match(r"\s*\| ([\d.]+) / ([\d.]+) \| ([\d.]+) / ([\d.]+) \| (−?[\d.]+) / ([\d.]+) ± ([\d.]+) "
+                     r"\| ([\d.]+) \|", line)
         if not m:
             continue
         r = rows[m.group(1)]
@@ -119,3 +122,36 @@ def test_demo_optimiser_pick():
     q = _quoted(r"`results/demo/optimise\.json` holds the demo run of `make demo`: it picks ([\d.]+) ms, where the "
                 r"reported rate is ([\d.]+) ± ([\d.]+) bits/s")
     _check([(1e3 * d["best"]["symbol_interval"], q[0]), (d["polished"], q[1]), (d["polished_stderr"], q[2])])
+
+
+def test_interval_pick_record():
+    rec = json.loads((ROOT / "results/interval_pick.json").read_text())
+    q = _quoted(r"picked ([\d.]+) ms on\s+the demo \(([\d.]+) ± ([\d.]+) bits/s\), (\d+) % of the best of an "
+                r"(\d+)-point sweep of the reported rate from 30 ms to 1 s\s+\(([\d.]+) bits/s at (\d+) ms\), and "
+                r"([\d.]+) ms on the single-bead on-off layout\s+\(`tests/data/scenarios/single_bead_ook.toml`; "
+                r"([\d.]+) ± ([\d.]+) bits/s\), (\d+) % of that sweep's best \(([\d.]+) bits/s at\s+(\d+) ms")
+    pairs = []
+    groups = (("demo", (0, 1, 2, 3, 5, 6)), ("single_bead_ook", (7, 8, 9, 10, 11, 12)))
+    for name, (pick, rate, se, pct, best, at) in groups:
+        r = rec[name]
+        pairs += [(1e3 * r["pick_s"], q[pick]), (r["pick_bits_per_second"], q[rate]), (r["pick_stderr"], q[se]),
+                  (100 * r["ratio_to_grid_best"], q[pct]), (r["grid_best"]["bits_per_second"], q[best]),
+                  (1e3 * r["grid_best"]["symbol_interval"], q[at])]
+        assert r["grid_points"] == int(q[4])
+    _check(pairs)
+
+
+def test_schemes_study():
+    rows = {r["scheme"]: r for r in _rows("results/schemes/table.csv")}
+    q = _quoted(r"multiplex carries the most \(\*\*([\d.]+) ± ([\d.]+) bits/symbol, ([\d.]+)\s+bits/s\*\*, bracket "
+                r"([\d.]+)–([\d.]+)\), then spatial signalling \(([\d.]+) ± ([\d.]+), bracket ([\d.]+)–([\d.]+)\)")
+    m, s = rows["multiplex"], rows["spatial"]
+    _check([(float(m["information_rate"]), q[0]), (float(m["stderr"]), q[1]), (float(m["bits_per_second"]), q[2]),
+            (float(m["lower_bound"]), q[3]), (float(m["upper_bound"]), q[4]), (float(s["information_rate"]), q[5]),
+            (float(s["stderr"]), q[6]), (float(s["lower_bound"]), q[7]), (float(s["upper_bound"]), q[8])])
+    curves = _rows("results/schemes/curves.csv")
+    peak = max((r for r in curves if r["scheme"] == "multiplex"), key=lambda r: float(r["information_rate"]))
+    q = _quoted(r"multiplex peaks at \*\*([\d.]+) ± ([\d.]+) bits/symbol at a\s+budget of (\d+)\*\* "
+                r"\(([\d.]+) bits/s\)")
+    _check([(float(peak["information_rate"]), q[0]), (float(peak["stderr"]), q[1]), (float(peak["budget"]), q[2]),
+            (float(peak["bits_per_second"]), q[3])])
