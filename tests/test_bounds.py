@@ -138,3 +138,22 @@ def test_bad_input():
         isi_bounds(np.array([[[1.0, 0.5]]]), [0.0], SYM, np.array([[0.5, 0.5], [0.5, 0.5]]))
     with pytest.raises(InputError, match="interference"):
         isi_bounds(np.array([[[1.0, 0.5]]]), [0.0], SYM, P, interference=[-1.0])
+
+
+@pytest.mark.parametrize("L, S, R, c", [(0, 3, 1, 4), (1, 2, 2, 6), (4, 3, 2, 5), (24, 5, 2, 3)])
+def test_matched_filter_means_follow_the_definition(L, S, R, c):
+    # the definition, written out symbol by symbol: slot k+s receives base + sum_l h_l(x_{k+s-l}) (common practice
+    # for a linear ISI channel); edges: no memory (L = 0), one lag, the largest lag of the demo (24)
+    from capacity.information.bounds import _mf_means
+
+    rng = np.random.default_rng(L)
+    per_lag, base = rng.random((L + 1, S, R)), rng.random(R)
+    ctx = rng.integers(0, S, size=(c, 2 * L))
+    got = _mf_means(per_lag, base, ctx, S)
+    assert got.shape == (c, S, L + 1, R)
+    for i in range(c):
+        for x in range(S):
+            seq = list(ctx[i, :L]) + [x] + list(ctx[i, L:])  # positions k-L .. k+L
+            for slot in range(L + 1):
+                want = base + sum(per_lag[lag][seq[L + slot - lag]] for lag in range(L + 1))
+                np.testing.assert_allclose(got[i, x, slot], want, rtol=1e-13)

@@ -92,19 +92,20 @@ def _dfe_mc(per_lag, base, p, n, rng, chunk):
 
 
 def _mf_means(per_lag, base, ctx, S):
-    """Means (c, S, L+1, R) of slots k..k+L given the other symbols ctx (c, 2L) = (x_{k-L..k-1}, x_{k+1..k+L})."""
+    """Means (c, S, L+1, R) of slots k..k+L given the other symbols ctx (c, 2L) = (x_{k-L..k-1}, x_{k+1..k+L}).
+
+    Slot k+s receives lag l from the symbol at k+s-l. The known symbols' part is one gather per lag over the whole
+    sequence (the current position maps to a zero row), the current symbol's part one broadcast."""
     L = per_lag.shape[0] - 1
     c = ctx.shape[0]
-    mu = np.broadcast_to(base, (c, S, L + 1, base.size)).copy()
-    for slot in range(L + 1):
-        for lag in range(L + 1):
-            off = slot - lag  # position of the contributing symbol relative to k
-            if off == 0:
-                mu[:, :, slot, :] += per_lag[lag][None, :, :]
-            else:
-                col = off + L if off < 0 else off + L - 1
-                mu[:, :, slot, :] += per_lag[lag][ctx[:, col]][:, None, :]
-    return mu
+    R = base.size
+    padded = np.concatenate([per_lag, np.zeros((L + 1, 1, R))], axis=1)  # symbol index S: "not a known symbol"
+    seq = np.concatenate([ctx[:, :L], np.full((c, 1), S, dtype=ctx.dtype), ctx[:, L:]], axis=1)  # (c, 2L+1)
+    known = np.zeros((c, L + 1, R))
+    for lag in range(L + 1):  # slots 0..L take lag `lag` from sequence positions L-lag .. 2L-lag
+        known += padded[lag][seq[:, L - lag: 2 * L - lag + 1]]
+    own = np.transpose(per_lag, (1, 0, 2))  # (S, L+1, R): symbol x at k gives lag s to slot k+s
+    return base[None, None, None, :] + known[:, None, :, :] + own[None, :, :, :]
 
 
 def isi_bounds(hits, background, symbols, input_law, *, interference=None, n_samples: int = 20_000,
