@@ -12,6 +12,7 @@ import warnings
 from pathlib import Path
 
 import pytest
+from test_sweep import CHEAP
 
 from capacity.errors import InputError
 from capacity.scenario.load import ScenarioKeyWarning
@@ -19,24 +20,9 @@ from capacity.sweep import grid_points, make_spec, parse_axis
 from capacity.sweep.spec import read_table
 
 REPO = Path(__file__).resolve().parent.parent
-OLD_NAMES = """
-name = "one bead, old key names (sweep test)"
-[medium]
-diffusion = "79.4 um^2/s"
-[[emitter]]
-name = "tx"
-position = ["0 um", "0 um", "0 um"]
-[[receiver]]
-name = "rx"
-centre = ["10 um", "0 um", "0 um"]
-radius = "5 um"
-[channel]
-symbol_interval = "200 ms"
-memory = 1
-response = "lone"
-particles = 700
-time_step = "2 ms"
-"""
+# the sweep tests' one-bead scenario, with the two channel keys under their old names
+OLD_NAMES = CHEAP.replace('response = "lone"\n', 'response = "lone"\nparticles = 700\ntime_step = "2 ms"\n')
+assert "particles = 700" in OLD_NAMES
 
 
 @pytest.mark.parametrize("old, new", [("particles", "particle_count"), ("time_step", "particle_step")])
