@@ -50,6 +50,10 @@ class Transition(NamedTuple):
     outputs : (Y, R) integer count vectors, one row per output (C order over receivers).
     truncated_mass : (S,) probability of counts outside the grid, per symbol.
     law : ``"poisson"`` or ``"binomial"``.
+    factors : for counts that are independent across receivers given the symbol (the Poisson law), the R
+        per-receiver laws, arrays (S, Y_j) on counts 0..Y_j-1, with ``matrix[x] = kron(factors[0][x], ...,
+        factors[R-1][x])`` (C order, as ``outputs``); ``None`` when the counts are dependent (binomial law) or
+        unknown. Blahut–Arimoto uses them to work on the factors instead of the (S, Y) matrix.
     """
 
     matrix: np.ndarray
@@ -57,6 +61,7 @@ class Transition(NamedTuple):
     outputs: np.ndarray
     truncated_mass: np.ndarray
     law: str
+    factors: tuple | None = None
 
 
 def symbol_means(hits, background, symbols, *, interference=None):
@@ -195,7 +200,8 @@ def poisson_transition(means, tol: float = 1e-10, max_outputs: int = 2_000_000) 
     """Poisson transition matrix on the grid of :func:`output_grid`.
 
     means : (S, R) mean counts. The truncated mass per symbol, 1 - prod_j P(Y_j <= y_max_j), comes from
-    ``scipy.stats.poisson.logcdf`` (not from 1 - row sum, which would lose digits).
+    ``scipy.stats.poisson.logcdf`` (not from 1 - row sum, which would lose digits). ``factors`` holds the
+    per-receiver pmfs (``scipy.stats.poisson.pmf``; a zero mean puts all mass on count 0).
     """
     m = _check_means(means)
     outputs = output_grid(m, tol=tol, max_outputs=max_outputs)
@@ -203,7 +209,9 @@ def poisson_transition(means, tol: float = 1e-10, max_outputs: int = 2_000_000) 
     ymax = outputs.max(axis=0)
     log_in = stats.poisson.logcdf(ymax[None, :], m).sum(axis=1)
     truncated = -np.expm1(log_in)
-    return Transition(np.exp(log_w), log_w, outputs, np.maximum(truncated, 0.0), "poisson")
+    factors = tuple(stats.poisson.pmf(np.arange(int(ymax[j]) + 1)[None, :], m[:, j:j + 1])
+                    for j in range(m.shape[1]))
+    return Transition(np.exp(log_w), log_w, outputs, np.maximum(truncated, 0.0), "poisson", factors)
 
 
 # ----------------------------------------------------------------------------- exact binomial law

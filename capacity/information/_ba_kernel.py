@@ -1,9 +1,15 @@
 """Jit-compiled inner solver of the Blahut–Arimoto family (nats; one Lagrange slope ``s`` held fixed).
 
-Maximises F(p) = I(p; W) - s * sum_x p_x b_x over the input simplex, for a dense (S, Y) channel matrix W
-whose rows sum to 1 (the public wrapper appends an overflow column for truncated mass).
+Maximises F(p) = I(p; W) - s * sum_x p_x b_x over the input simplex. The channel ``w`` is either a dense (S, Y)
+matrix whose rows sum to 1 (the public wrapper appends an overflow column for truncated mass), or a
+:class:`Product`: independent counts at R receivers, W(y|x) = prod_j A_j[x, y_j] on a product grid of counts, plus
+one overflow output. The solver touches W only through three contractions (output law, expected log output law,
+the S x S Gram matrix of the Newton step); on a product they are einsums over the factors, so the (S, Y) matrix is
+never formed (same arithmetic count, but matrix-matrix products on small factors instead of passes over a large
+matrix).
 
-Each iteration evaluates two candidates and keeps the one with the larger F (ties: the smaller gap):
+Each iteration evaluates two candidates and keeps the one with the larger F (ties: the smaller gap), except in
+the quadratic regime (the Newton step gained and at least halved the gap), where the Newton step is taken alone:
 
 * the Blahut–Arimoto step p'_x ∝ p_x exp(d_x - s b_x), d_x = D(W_x || pW) (Arimoto 1972; Blahut 1972),
   which never decreases F;
@@ -33,9 +39,60 @@ _MAX_PASSES = 16  # active-set passes per Newton step (entries still negative af
 _FLOOR = 1e-300  # Blahut–Arimoto step: p is floored here so an input dropped by Newton can come back
 
 
+class Product(NamedTuple):
+    """W(y|x) = prod_j factors[j][x, y_j] for y on the grid, and W(overflow|x) = overflow[x]; rows sum to 1.
+
+    factors : R arrays (S, Y_j), per-receiver count laws on 0..Y_j-1 (each row may sum to less than 1: its
+    missing mass is part of ``overflow``); overflow : (S,) = 1 - prod_j sum_y factors[j][x, y].
+    """
+
+    factors: tuple
+    overflow: jax.Array
+
+
+_AXES = "abcdefghijklmnopqrstuvw"
+
+
+def _grid_spec(n_recv: int) -> tuple[str, str]:
+    axes = _AXES[:n_recv]
+    return ",".join("x" + a for a in axes), axes
+
+
+def output_law(w, p):
+    """q = p W: (Y,) for a dense matrix; (grid (Y_1, ..., Y_R), overflow scalar) for a :class:`Product`."""
+    if isinstance(w, Product):
+        rows, axes = _grid_spec(len(w.factors))
+        return jnp.einsum(f"x,{rows}->{axes}", p, *w.factors, optimize="optimal"), jnp.dot(p, w.overflow)
+    return p @ w
+
+
+def expected_log(w, q):
+    """sum_y W(y|x) ln q(y) for every input x (q floored at TINY; W = 0 contributes 0)."""
+    if isinstance(w, Product):
+        grid, over = q
+        rows, axes = _grid_spec(len(w.factors))
+        log_grid = jnp.log(jnp.maximum(grid, TINY))
+        inner = jnp.einsum(f"{rows},{axes}->x", *w.factors, log_grid, optimize="optimal")
+        return inner + w.overflow * jnp.log(jnp.maximum(over, TINY))
+    return w @ jnp.log(jnp.maximum(q, TINY))
+
+
+def gram(w, q):
+    """G[x, x'] = sum_y W(y|x) W(y|x') / q(y) (q floored at TINY), the negative Hessian of I at q."""
+    if isinstance(w, Product):
+        grid, over = q
+        axes = _AXES[: len(w.factors)]
+        spec = ",".join(f"x{a},z{a}" for a in axes)
+        pairs = [f for a in w.factors for f in (a, a)]
+        inner = jnp.einsum(f"{spec},{axes}->xz", *pairs, 1.0 / jnp.maximum(grid, TINY), optimize="optimal")
+        return inner + jnp.outer(w.overflow, w.overflow) / jnp.maximum(over, TINY)
+    wn = w / jnp.sqrt(jnp.maximum(q, TINY))[None, :]
+    return wn @ wn.T
+
+
 class Evaluation(NamedTuple):
     d: jax.Array  # (S,) D(W_x || q), nats
-    q: jax.Array  # (Y,) output law
+    q: jax.Array  # output law: (Y,), or (grid, overflow) for a Product
     info: jax.Array  # I(p; W), nats
     objective: jax.Array  # I - s * mean cost
     gap: jax.Array  # max_x (d_x - s b_x) - objective, nats
@@ -45,8 +102,8 @@ class Evaluation(NamedTuple):
 def evaluate(p, w, negent, b, s, valid) -> Evaluation:
     """q = pW, d = sum_y W ln W - W ln q, I = p.d and the certified gap (nats); rows with ``valid`` False
     are padding (probability 0, excluded from the maximum)."""
-    q = p @ w
-    d = negent - w @ jnp.log(jnp.maximum(q, TINY))
+    q = output_law(w, p)
+    d = negent - expected_log(w, q)
     info = jnp.dot(p, d)
     objective = info - s * jnp.dot(p, b)
     gap = jnp.max(jnp.where(valid, d - s * b, -jnp.inf)) - objective
@@ -66,8 +123,7 @@ def _newton_step(p, ev: Evaluation, w, b, s, valid, mu):
     outputs, nearly collinear rows); mu shrinks after successful steps, so the step becomes pure Newton.
     """
     g = ev.d - s * b
-    wn = w / jnp.sqrt(jnp.maximum(ev.q, TINY))[None, :]
-    hess = -(wn @ wn.T)
+    hess = -gram(w, ev.q)
     start = ((p > 0) | (g > ev.objective)) & valid  # current support plus inputs that violate the KKT condition
     damp = 1e-12 * jnp.max(jnp.abs(jnp.diag(hess))) + mu / jnp.maximum(p, 1e-8)
 
@@ -121,7 +177,7 @@ class Solution(NamedTuple):
 def solve(w, negent, b, s, valid, p0, tol, max_iter, newton: bool = True) -> Solution:
     """Iterate from p0 until gap <= tol (nats) or max_iter; returns the best (smallest-gap) point seen.
 
-    Shapes: w (S, Y), negent (S,), b (S,), valid (S,) bool (False marks padding rows), p0 (S,).
+    Shapes: w (S, Y) or a Product with S rows, negent (S,), b (S,), valid (S,) bool (False marks padding rows), p0 (S,).
     """
     ev0 = evaluate(p0, w, negent, b, s, valid)
     eps = 1e-14
@@ -132,23 +188,35 @@ def solve(w, negent, b, s, valid, p0, tol, max_iter, newton: bool = True) -> Sol
 
     def body(st):
         p, ev, it, nsteps, best_p, best_ev, since, mu = st
-        p_ba = _ba_step(p, ev, b, s, valid)
-        ev_ba = evaluate(p_ba, w, negent, b, s, valid)
         if newton:
             p_nt = _newton_step(p, ev, w, b, s, valid, mu)
             ev_nt = evaluate(p_nt, w, negent, b, s, valid)
-            scale = eps * (1.0 + jnp.abs(ev_ba.objective))
-            better = ev_nt.objective > ev_ba.objective + scale
-            tie = jnp.abs(ev_nt.objective - ev_ba.objective) <= scale
-            take = better | (tie & (ev_nt.gap < ev_ba.gap))
-            take = take & jnp.isfinite(ev_nt.gap)
-            p_new = jnp.where(take, p_nt, p_ba)
-            ev_new = jax.tree_util.tree_map(lambda a, c: jnp.where(take, a, c), ev_nt, ev_ba)
-            nsteps = nsteps + take.astype(nsteps.dtype)
+            scale = eps * (1.0 + jnp.abs(ev.objective))
             gain = ev_nt.objective > ev.objective + scale  # the damped step improved on the current point
+            # in the quadratic regime (the step gained and at least halved the gap) the Blahut–Arimoto
+            # candidate is not evaluated: it could not compete and would cost one more pass over the channel
+            quadratic = gain & jnp.isfinite(ev_nt.gap) & (ev_nt.gap <= 0.5 * ev.gap)
+
+            def newton_only():
+                return p_nt, ev_nt, jnp.array(True)
+
+            def compare_with_ba():
+                p_ba = _ba_step(p, ev, b, s, valid)
+                ev_ba = evaluate(p_ba, w, negent, b, s, valid)
+                scale_ba = eps * (1.0 + jnp.abs(ev_ba.objective))
+                better = ev_nt.objective > ev_ba.objective + scale_ba
+                tie = jnp.abs(ev_nt.objective - ev_ba.objective) <= scale_ba
+                take = (better | (tie & (ev_nt.gap < ev_ba.gap))) & jnp.isfinite(ev_nt.gap)
+                p_new = jnp.where(take, p_nt, p_ba)
+                ev_new = jax.tree_util.tree_map(lambda a, c: jnp.where(take, a, c), ev_nt, ev_ba)
+                return p_new, ev_new, take
+
+            p_new, ev_new, take = lax.cond(quadratic, newton_only, compare_with_ba)
+            nsteps = nsteps + take.astype(nsteps.dtype)
             mu = jnp.where(gain, jnp.maximum(mu * 0.1, 1e-14), jnp.minimum(mu * 10.0, 1e4))
         else:
-            p_new, ev_new = p_ba, ev_ba
+            p_new = _ba_step(p, ev, b, s, valid)
+            ev_new = evaluate(p_new, w, negent, b, s, valid)
         improved = ev_new.gap < best_ev.gap
         best_p = jnp.where(improved, p_new, best_p)
         best_ev = jax.tree_util.tree_map(lambda a, c: jnp.where(improved, a, c), ev_new, best_ev)
@@ -167,10 +235,9 @@ def _cost_derivative(p, w, b, support_threshold=1e-12):
 
     [H  -1; 1^T 0] [dp; dnu] = [b; 0] on the support gives dP/ds = b . dp (<= 0), cost^2 per nat.
     """
-    q = p @ w
     active = p > support_threshold * jnp.max(p)
-    wn = jnp.where(active[:, None], w, 0.0) / jnp.sqrt(jnp.maximum(q, TINY))[None, :]
-    hess = -(wn @ wn.T)
+    a = active.astype(p.dtype)
+    hess = -(gram(w, output_law(w, p)) * a[:, None] * a[None, :])
     reg = 1e-12 * jnp.max(jnp.abs(jnp.diag(hess))) * jnp.ones_like(p)
     dp = _kkt_solve(hess, reg, active, b, jnp.zeros_like(p), jnp.zeros_like(p))
     return jnp.dot(b, dp)

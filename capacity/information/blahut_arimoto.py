@@ -22,6 +22,13 @@ Large alphabets (more than ``ACTIVE_SET_ABOVE`` inputs) are solved on small work
 certificate checked over ALL inputs after every working-set solve and the worst violators added until it
 holds (``_active_set``): the Newton step's S x S system stays small while most inputs keep probability 0.
 
+Independent counts. A Transition that carries per-receiver ``factors`` (``poisson_transition`` with 2 or more
+receivers: W(y|x) = prod_j A_j[x, y_j]) is solved on the factors: the output law, sum_y W ln q and the Newton
+step's Gram matrix are einsums over them (``_ba_kernel.Product``), so the (S, Y) matrix is never read; sum_y W ln W
+is sum_j h_j prod_{k != j} s_k (h_j = sum A_j ln A_j, s_k = sum A_k). No output columns are lumped on this route
+(the count grid already stops where its tail is below the transition's tol); the truncated mass enters the gap as
+below. Large alphabets (working sets) use the dense matrix.
+
 Truncated rows (sum < 1, e.g. a Poisson law on a finite count grid) are completed with ONE overflow
 output that carries the missing mass t_x. That lumped channel is a degraded version of the true one, so
 its capacity is a valid lower bound; conversely lumping a set L of outputs loses at most
@@ -64,7 +71,8 @@ ACTIVE_SET_ABOVE = 64  # more inputs than this: working sets (``_active_set``) i
 
 
 class _Prepared(NamedTuple):
-    kept: np.ndarray  # (S, Yk) kept output columns (a view of the input when nothing was lumped)
+    kept: np.ndarray | None  # (S, Yk) kept output columns (a view of the input when nothing was lumped); None
+    #                          when the channel is given by per-receiver factors
     overflow: np.ndarray | None  # (S,) mass of the one overflow output (truncated + lumped), None if none
     negent_np: np.ndarray  # (S,) sum_y W ln W over the kept outputs and the overflow output
     n_sym: int  # S
@@ -72,6 +80,7 @@ class _Prepared(NamedTuple):
     n_outputs: int  # Y' kept (overflow included)
     n_given: int  # Y given
     cache: dict  # padded and device copies, built on first use
+    factors: tuple | None = None  # R arrays (S, Y_j): W(y|x) = prod_j factors[j][x, y_j] on the grid
 
     @property
     def large(self) -> bool:  # served by working sets (``_active_set``)
@@ -81,9 +90,10 @@ class _Prepared(NamedTuple):
     def w_np(self) -> np.ndarray:
         """(S, Y'') rows summing to 1: kept outputs, the overflow output, zero columns up to a bucket size."""
         if "w_np" not in self.cache:
-            n_kept = self.kept.shape[1]
+            kept = self.kept if self.factors is None else _kron_rows(self.factors)
+            n_kept = kept.shape[1]
             full = np.zeros((self.n_sym, _bucket(self.n_outputs, 64)))
-            full[:, :n_kept] = self.kept
+            full[:, :n_kept] = kept
             if self.overflow is not None:
                 full[:, n_kept] = self.overflow
             self.cache["w_np"] = full
@@ -94,17 +104,45 @@ class _Prepared(NamedTuple):
             return None
         if "w" not in self.cache:  # zero rows pad S to a bucket size: a few compiled kernels serve every shape
             s_pad = _bucket(self.n_sym, 8)
-            w = np.zeros((s_pad, self.w_np.shape[1]))
-            w[: self.n_sym] = self.w_np
+            if self.factors is None:
+                w = np.zeros((s_pad, self.w_np.shape[1]))
+                w[: self.n_sym] = self.w_np
+                w = jnp.asarray(w)
+            else:  # zero columns pad each receiver's counts to a bucket size as well
+                w = kernel.Product(tuple(jnp.asarray(_zero_pad(f, s_pad, _bucket(f.shape[1], 8, fine_above=128)))
+                                         for f in self.factors),
+                                   jnp.asarray(_zero_pad(self.overflow, s_pad)))
             neg = np.zeros(s_pad)
             neg[: self.n_sym] = self.negent_np
-            self.cache.update(w=jnp.asarray(w), negent=jnp.asarray(neg),
-                              valid=jnp.asarray(np.arange(s_pad) < self.n_sym))
+            self.cache.update(w=w, negent=jnp.asarray(neg), valid=jnp.asarray(np.arange(s_pad) < self.n_sym))
         return self.cache[name]
 
-    w = property(lambda self: self._device("w"))  # (S', Y'') padded, on the device (None for large S)
+    w = property(lambda self: self._device("w"))  # (S', Y'') padded or a kernel.Product, on the device (None
+    #                                                 for large S)
     negent = property(lambda self: self._device("negent"))  # (S',)
     valid = property(lambda self: self._device("valid"))  # (S',) True for real symbols
+
+    def evaluate(self, p: np.ndarray, b: np.ndarray, s: float) -> kernel.Evaluation:
+        """The certificate at law p (nats): d_x, q, I, F = I - s P and the gap, over every input."""
+        if self.factors is None:
+            return active_set.evaluate(p, self.w_np, self.negent_np, b, s)
+        ev = kernel.evaluate(_pad(p, self), self.w, self.negent, _pad(b, self), jnp.asarray(s, dtype=jnp.float64),
+                             self.valid)
+        return ev._replace(d=np.asarray(ev.d)[: self.n_sym])
+
+
+def _zero_pad(a: np.ndarray, rows: int, cols: int | None = None) -> np.ndarray:
+    out = np.zeros((rows,) if a.ndim == 1 else (rows, cols))
+    out[tuple(slice(0, n) for n in a.shape)] = a
+    return out
+
+
+def _kron_rows(factors) -> np.ndarray:
+    """(S, prod Y_j): row x is kron(factors[0][x], ..., factors[R-1][x]) (C order over receivers)."""
+    rows = factors[0]
+    for f in factors[1:]:
+        rows = (rows[:, :, None] * f[:, None, :]).reshape(rows.shape[0], -1)
+    return rows
 
 
 def _matrix_of(transition) -> tuple[np.ndarray, np.ndarray, np.ndarray | None]:
@@ -138,7 +176,58 @@ def _matrix_of(transition) -> tuple[np.ndarray, np.ndarray, np.ndarray | None]:
     return w, tail, log_w
 
 
+def _factors_of(transition) -> list[np.ndarray] | None:
+    """The per-receiver laws of a Transition with independent counts (2 or more receivers, at most
+    ``ACTIVE_SET_ABOVE`` inputs), checked; None when the solver should use the dense matrix."""
+    factors = getattr(transition, "factors", None)
+    if factors is None or len(factors) < 2:
+        return None
+    arrays = [real_array(f, "transition.factors", "pass the Transition made by poisson_transition") for f in factors]
+    n_sym = arrays[0].shape[0] if arrays[0].ndim == 2 else -1
+    for j, a in enumerate(arrays):
+        if a.ndim != 2 or a.shape[0] != n_sym or a.shape[1] < 1:
+            raise InputError(f"transition.factors[{j}]", a.shape, f"must be an (S, Y_{j}) array with S = {n_sym}",
+                             "pass the Transition made by poisson_transition, or set factors=None")
+        sums = a.sum(axis=1)
+        if not (np.all(np.isfinite(sums)) and a.min() >= 0 and sums.max() <= 1 + 1e-9 and sums.min() > 0):
+            raise InputError(f"transition.factors[{j}]", f"row sums in [{sums.min():.3g}, {sums.max():.3g}]",
+                             "must hold finite probabilities >= 0 whose rows sum to at most 1 (and are positive)",
+                             "pass the Transition made by poisson_transition, or set factors=None")
+    if n_sym > ACTIVE_SET_ABOVE:
+        return None
+    matrix = getattr(transition, "matrix", None)
+    if matrix is not None and np.shape(matrix) != (n_sym, math.prod(a.shape[1] for a in arrays)):
+        raise InputError("transition.factors", [a.shape for a in arrays],
+                         f"do not match the matrix of shape {np.shape(matrix)}",
+                         "pass the Transition made by poisson_transition, or set factors=None")
+    return arrays
+
+
+def _prepare_product(transition, factors: list[np.ndarray]) -> _Prepared:
+    """Prepared channel for W(y|x) = prod_j A_j[x, y_j] on the grid plus one overflow output (no lumping: the
+    grid of ``output_grid`` already stops where the tail is below its tol).
+
+    sum_y W ln W = sum_j h_j prod_{k != j} s_k with h_j = sum_y A_j ln A_j and s_k = sum_y A_k (row-wise)."""
+    n_sym = factors[0].shape[0]
+    sums = [a.sum(axis=1) for a in factors]
+    overflow = np.maximum(1.0 - np.prod(sums, axis=0), 0.0)
+    negent = special.xlogy(overflow, overflow)
+    for j, a in enumerate(factors):
+        others = np.prod([sums[k] for k in range(len(factors)) if k != j], axis=0)
+        negent = negent + special.xlogy(a, a).sum(axis=1) * others
+    tail = getattr(transition, "truncated_mass", None)
+    tail = overflow if tail is None else np.clip(real_array(
+        tail, "transition.truncated_mass", "pass the Transition's own truncated_mass"), 0.0, 1.0)
+    log_s = math.log2(n_sym) if n_sym > 1 else 0.0
+    n_grid = math.prod(a.shape[1] for a in factors)
+    return _Prepared(None, overflow, negent, n_sym, float(np.max(tail)) * log_s, n_grid + 1, n_grid, {},
+                     tuple(factors))
+
+
 def _prepare(transition, tol: float) -> _Prepared:
+    factors = _factors_of(transition)
+    if factors is not None:
+        return _prepare_product(transition, factors)
     w, tail, log_w = _matrix_of(transition)
     n_sym, n_out = w.shape
     log_s = math.log2(n_sym) if n_sym > 1 else 0.0
@@ -174,10 +263,10 @@ def _prepare(transition, tol: float) -> _Prepared:
     return _Prepared(kept, overflow, negent, n_sym, float(lumped.max()) * log_s, n_cols, n_out, {})
 
 
-def _bucket(n: int, minimum: int) -> int:
-    """Next size >= n among powers of two (up to 1024), then quarter octaves (overhead <= 25%)."""
+def _bucket(n: int, minimum: int, fine_above: int = 1024) -> int:
+    """Next size >= n among powers of two (up to ``fine_above``), then quarter octaves (overhead <= 25%)."""
     size = max(minimum, 1 << max(0, (n - 1).bit_length()))
-    if size <= 1024:
+    if size <= fine_above:
         return size
     half = size // 2
     return min(half + k * half // 4 for k in range(1, 5) if half + k * half // 4 >= n)
@@ -226,7 +315,10 @@ def _useless(prep: _Prepared) -> bool:
     """True when every input has the same output law up to round-off: I(p) ~ 0 for every p (capacity ~0 at any
     cost). The certificate is still evaluated on the given matrix, so the reported gap stays a valid bound."""
     if "useless" not in prep.cache:
-        spread = np.ptp(prep.kept, axis=0).max()
+        if prep.factors is None:
+            spread = np.ptp(prep.kept, axis=0).max()
+        else:  # identical rows of every factor <=> identical output laws
+            spread = max(float(np.ptp(a, axis=0).max()) for a in prep.factors)
         if prep.overflow is not None:
             spread = max(spread, np.ptp(prep.overflow))
         prep.cache["useless"] = bool(spread <= 1e-15)
@@ -236,7 +328,7 @@ def _useless(prep: _Prepared) -> bool:
 def _run(prep: _Prepared, b: np.ndarray, s: float, p0: np.ndarray, tol: float, max_iter: int) -> _Point:
     if _useless(prep):  # the objective -s P is linear: the start law at s = 0, else the cheapest symbol (gap 0)
         p = p0 if s == 0 else (np.arange(prep.n_sym) == int(np.argmin(b))).astype(float)
-        ev = active_set.evaluate(p, prep.w_np, prep.negent_np, b, float(s))
+        ev = prep.evaluate(p, b, float(s))
         sol = kernel.Solution(_pad(p, prep), ev, np.asarray(0), np.asarray(0), np.asarray(False), np.asarray(0.0))
         return _Point(float(s), p, sol, float(p @ b))
     if prep.large:  # large alphabet: working sets, certificate over all inputs
@@ -284,7 +376,7 @@ def _mix(prep, b, a: _Point, other_p: np.ndarray, other_cost: float, budget: flo
     theta = float(np.clip(theta, 0.0, 1.0))
     p = theta * a.p + (1.0 - theta) * other_p
     p = p / p.sum()
-    ev = active_set.evaluate(p, prep.w_np, prep.negent_np, b, s)
+    ev = prep.evaluate(p, b, s)
     sol = a.sol._replace(p=_pad(p, prep), ev=ev)
     return _Point(s, p, sol, float(p @ b))
 
