@@ -24,7 +24,10 @@ import traceback
 _RATE_OUTPUTS = ("information_rate", "stderr", "lower_bound", "upper_bound", "bits_per_second",
                  "lower_bits_per_second", "upper_bits_per_second", "bits_per_molecule", "single_slot_capacity",
                  "mean_molecules", "memory", "model", "rate_method", "input_law", "lower_bound_method",
-                 "upper_bound_method", "bracket_relative", "flag")
+                 "upper_bound_method", "bracket_relative", "flag", "input_law_probabilities")
+#: outputs added after stores were first written: a ``points.csv`` without them is upgraded in place (their
+#: cells empty in its older rows) instead of refused, so earlier sweeps still resume
+ADDED_OUTPUTS = ("input_law_probabilities",)
 UNITS = {"information_rate": "bits/symbol", "stderr": "bits/symbol", "lower_bound": "bits/symbol",
          "upper_bound": "bits/symbol", "single_slot_capacity": "bits/symbol", "bits_per_second": "bits/s",
          "lower_bits_per_second": "bits/s", "upper_bits_per_second": "bits/s", "bits_per_molecule": "bits/molecule",
@@ -47,7 +50,14 @@ def unit_of(output: str) -> str:
 
 
 class RateMeasure:
-    """Every rate of the scenario's own signalling scheme (as ``capacity rate``)."""
+    """Every rate of the scenario's own signalling scheme (as ``capacity rate``).
+
+    ``input_law_probabilities`` is the input law the rates were computed at, (S,) probabilities over the
+    alphabet's symbols in its order, as a JSON list (exact: floats as ``repr``). A setting ``candidate_laws``
+    (name -> (S,) list; not among the defaults, so it enters only the ids of points that carry it) adds laws to
+    the ones :func:`capacity.link_rates` chooses from (:mod:`capacity.sweep.carry` passes laws found at smaller
+    budgets this way).
+    """
 
     name = "rate"
     defaults = {"model": None, "n_symbols": 20_000, "n_runs": 8, "bound_samples": 20_000, "window_samples": 4096,
@@ -73,15 +83,38 @@ class RateMeasure:
 
         response = channel_response(scenario, settings["model"], seed=seed)
         alphabet = build_alphabet(scenario.signalling, len(scenario.emitters))
+        candidates = _candidate_laws(settings.get("candidate_laws"), len(alphabet.labels))
         rates = link_rates(scenario, response, alphabet, n_symbols=settings["n_symbols"], n_runs=settings["n_runs"],
                            bound_samples=settings["bound_samples"], window_samples=settings["window_samples"],
-                           optimise_law=settings["optimise_law"], seed=seed)
+                           optimise_law=settings["optimise_law"], candidate_laws=candidates, seed=seed)
         return rate_outputs(rates, response)
+
+
+def _candidate_laws(given, n_symbols: int) -> dict | None:
+    """The ``candidate_laws`` setting checked: name -> (S,) non-negative probabilities of this alphabet."""
+    if not given:
+        return None
+    import numpy as np
+
+    from capacity.errors import InputError
+
+    out = {}
+    for name, law in dict(given).items():
+        arr = np.asarray(law, dtype=float)
+        if arr.shape != (n_symbols,) or not np.all(np.isfinite(arr)) or np.any(arr < 0) or arr.sum() <= 0:
+            raise InputError("candidate_laws", name, f"is not a law on this alphabet's {n_symbols} symbols "
+                             f"(shape {arr.shape})", "give non-negative weights, one per symbol of the scheme")
+        out[str(name)] = arr
+    return out
 
 
 def rate_outputs(rates, response) -> dict:
     """The rate measure's columns from a :class:`capacity.LinkRates` and its response (``flag``: why the bracket
     misses its target, as in ``capacity compare``'s CSV)."""
+    import json
+
+    import numpy as np
+
     from capacity.compare import bracket_flag
 
     ts = rates.symbol_interval
@@ -96,7 +129,8 @@ def rate_outputs(rates, response) -> dict:
             "lower_bits_per_second": rates.lower_bound / ts, "upper_bits_per_second": rates.upper_bound / ts,
             "bits_per_molecule": rates.per_molecule(r.rate), "single_slot_capacity": float(rates.isi_free.capacity),
             "mean_molecules": rates.mean_molecules, "memory": response.memory, "model": response.model,
-            "rate_method": r.method}
+            "rate_method": r.method,
+            "input_law_probabilities": json.dumps([float(v) for v in np.asarray(rates.iid_input, dtype=float)])}
 
 
 class CompareMeasure:

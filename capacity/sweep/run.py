@@ -10,7 +10,7 @@ from pathlib import Path
 
 from capacity.sweep.engine import open_cluster, run_points
 from capacity.sweep.grid import grid_points
-from capacity.sweep.measures import MEASURES, evaluate
+from capacity.sweep.measures import ADDED_OUTPUTS, MEASURES, evaluate
 from capacity.sweep.store import Store
 
 
@@ -56,7 +56,7 @@ def run_sweep(spec, out, *, workers: int | None = None, scheduler: str | None = 
     out = Path(out)
     points, outputs = plan(spec)
     labels = [ax.label for ax in spec.axes]
-    store = Store(out, labels, outputs)
+    store = Store(out, labels, outputs, ADDED_OUTPUTS)
     finished = store.finished()
     todo = [p for p in points if p.point_id not in finished]
     skipped = len(points) - len(todo)

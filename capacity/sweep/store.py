@@ -5,6 +5,10 @@ Columns: ``point_id``, the varied fields (SI numbers, or text), every output of 
 kill (it is dropped, and cut off before the next append), so a killed sweep loses only the points that were
 running. ``failures.csv`` logs failed attempts the same way (``point_id``, the varied fields, ``error``,
 ``seconds``); a failed point is tried again on the next run.
+
+A measure that gains an output (``capacity.sweep.measures.ADDED_OUTPUTS``) does not strand the stores written
+before: a file whose header is the new one without those columns is rewritten once with the new header (their
+cells empty in the older rows; written to a temporary file, forced to disk, then renamed over the old one).
 """
 
 from __future__ import annotations
@@ -42,9 +46,10 @@ def parse_cell(text: str):
 class RowFile:
     """An append-only CSV file with a fixed header; every ``append`` is flushed and fsync'ed."""
 
-    def __init__(self, path: Path, columns: list[str]):
+    def __init__(self, path: Path, columns: list[str], added=()):
         self.path = Path(path)
         self.columns = list(columns)
+        self.added = [c for c in added if c in self.columns]
         self.rows = self._read()
         self._handle = None
 
@@ -59,12 +64,29 @@ class RowFile:
         lines = list(csv.reader(io.StringIO(raw.decode("utf-8"))))
         if not lines:
             return []
+        if self.added and lines[0] == [c for c in self.columns if c not in self.added]:
+            lines = self._upgrade(lines)
         if lines[0] != self.columns:
             raise InputError("--out", str(self.path.parent), f"{self.path.name} holds a sweep with other columns "
                              f"({', '.join(lines[0][:6])}...)", "give another --out folder for this sweep, or "
                              "vary the same fields with the same measure (a file written by an older version "
                              "with other output columns: move it away to recompute)")
         return [dict(zip(self.columns, line, strict=True)) for line in lines[1:] if len(line) == len(self.columns)]
+
+    def _upgrade(self, lines: list[list[str]]) -> list[list[str]]:
+        """The file rewritten with the current header, empty cells in the added columns of its rows."""
+        old = lines[0]
+        rows = [dict(zip(old, line, strict=True)) for line in lines[1:] if len(line) == len(old)]
+        new = [self.columns] + [[r.get(c, "") for c in self.columns] for r in rows]
+        buf = io.StringIO()
+        csv.writer(buf, lineterminator="\n").writerows(new)
+        tmp = self.path.with_name(self.path.name + ".upgrade")
+        with open(tmp, "w", newline="", encoding="utf-8") as fh:
+            fh.write(buf.getvalue())
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, self.path)
+        return new
 
     def append(self, row: dict) -> None:
         if self._handle is None:
@@ -92,12 +114,12 @@ class RowFile:
 class Store:
     """The folder of one sweep: finished points (``points.csv``) and failed attempts (``failures.csv``)."""
 
-    def __init__(self, folder, labels: list[str], outputs: list[str]):
+    def __init__(self, folder, labels: list[str], outputs: list[str], added=()):
         self.folder = Path(folder)
         self.labels = list(labels)
         self.outputs = list(outputs)
         self.points = RowFile(self.folder / POINTS, ["point_id", *labels, *outputs, "seed", "seconds",
-                                                            "cpu_seconds"])
+                                                            "cpu_seconds"], added)
         self.failures = RowFile(self.folder / FAILURES, ["point_id", *labels, "error", "seconds"])
 
     def finished(self) -> dict[str, dict]:
