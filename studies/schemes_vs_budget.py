@@ -7,11 +7,17 @@ finished point stored at once, finished points skipped when the study is re-run)
   each scheme's best detector) -> ``table.csv``, ``table.md``;
 * rate-versus-budget curves with their bracket (measure ``rate`` over ``signalling.scheme`` x
   ``signalling.budget``, a log grid from 3 to 120 molecules/symbol; every point computed on its own, with its own
-  seed) -> ``curves.csv``, ``curves.png``, ``curves_per_second.png``;
-* ``schemes.json``: versions, settings, seeds, wall time and the findings.
+  seed), then a second pass that carries each scheme's laws to the larger budgets (``capacity.sweep.carry``: a
+  point below the best estimate at a smaller budget is evaluated again, with its own id and seed, with that
+  budget's input law among its candidates; a law that meets a budget meets every larger one, so the best rate
+  cannot fall with the budget) -> ``curves.csv``, ``curves.png``, ``curves_per_second.png``. Each point reports
+  the larger of its estimates (first and carried): biased upward by at most about one standard error;
+  ``first_rate`` keeps the first estimate, ``carried_from`` the budget of the law a carried row was given;
+* ``schemes.json``: versions, settings, seeds, wall time, the findings, and each curve's largest remaining fall
+  below a smaller budget's value in combined standard errors (before and after carrying).
 
 The sweeps' own files stay beside them (``at_budget/`` and ``budget_sweep/``: points.csv, sweep.nc,
-sweep.json).
+sweep.json; ``budget_sweep_carried/points.csv``: the second pass's evaluations).
 
     python studies/schemes_vs_budget.py [--quick] [--workers N] [--scenario FILE] [--out DIR]
 """
@@ -20,6 +26,7 @@ from __future__ import annotations
 
 import argparse
 import csv
+import math
 import sys
 import time
 from pathlib import Path
@@ -39,13 +46,26 @@ TABLE_FIELDS = ("scheme", "budget", "mean_molecules", "single_slot_capacity", "c
 CURVE_FIELDS = ("scheme", "budget", "mean_molecules", "single_slot_capacity", "information_rate", "stderr",
                 "lower_bound", "upper_bound", "bits_per_second", "lower_bits_per_second", "upper_bits_per_second",
                 "bits_per_molecule", "rate_method", "input_law", "lower_bound_method", "upper_bound_method",
-                "bracket_relative", "flag", "memory", "model", "seed", "point_id")
+                "bracket_relative", "flag", "memory", "model", "seed", "point_id", "first_point", "first_rate",
+                "first_stderr", "evaluations", "carried_from", "input_law_probabilities")
+
+#: how the curves' second pass works and what its statistics mean (schemes.json)
+CARRY_NOTE = ("after the rate sweep (every budget on its own), each scheme's budgets are walked upward; a point "
+              "whose estimate is below the best estimate at a smaller budget is evaluated again with that point's "
+              "input law among its candidates (a law that meets a budget meets every larger one: the capacity-cost "
+              "function is non-decreasing), as a point of its own (id from the scenario, settings and carried law; "
+              "seed from the id; stored in budget_sweep_carried/points.csv); rounds repeat until no point is below "
+              "the best below it without having been given that law. Each point reports the larger of its "
+              "estimates: the pick favours the luckier estimate, an upward bias of at most about one standard "
+              "error; first_rate/first_stderr keep the first estimate. Nothing is copied forward: remaining falls "
+              "are reported in findings.falls")
 
 
 def main(argv=None) -> int:
     from capacity.compare import applicable_schemes
     from capacity.scenario.load import scenario_from_dict
     from capacity.sweep import make_spec, run_sweep
+    from capacity.sweep.carry import carry_laws
     from capacity.sweep.spec import read_table
 
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
@@ -75,6 +95,8 @@ def main(argv=None) -> int:
                            measure="rate", source=source,
                            settings={"symbols": cfg["curve_symbols"], "runs": cfg["runs"]})
     curve_summary = run_sweep(curve_spec, out / "budget_sweep", workers=args.workers, plots=False)
+    carry_summary = carry_laws(curve_spec, out / "budget_sweep", out / "budget_sweep_carried",
+                               along="signalling.budget", workers=args.workers)
 
     table = _table_rows(out / "at_budget" / "points.csv", _ids(table_spec), schemes)
     _write_csv(out / "table.csv", TABLE_FIELDS, table)
@@ -88,7 +110,7 @@ def main(argv=None) -> int:
         + "\n".join(lines) + "\n")
     print("\n".join(lines))
 
-    curve_rows = _curve_rows(out / "budget_sweep" / "points.csv", _ids(curve_spec), schemes)
+    curve_rows = _curve_rows(carry_summary["rows"], schemes)
     _write_csv(out / "curves.csv", CURVE_FIELDS, curve_rows)
     curves = _curves(curve_rows, schemes, scenario.channel.symbol_interval)
     from capacity.report.plots import plot_rate_curves
@@ -96,21 +118,30 @@ def main(argv=None) -> int:
     plot_rate_curves(curves, out / "curves.png", title=scenario.name)
     plot_rate_curves(curves, out / "curves_per_second.png", per_second=True, title=scenario.name)
     findings = _findings(table, curves)
+    findings["falls"] = _falls(curve_rows, schemes)
     write_record(out, "schemes", {"scenario": source, "engine": "capacity.sweep", "schemes": schemes,
                                   "table": {"measure": "compare", "budget": budget, "settings": table_spec.settings,
                                             "base_seed": table_spec.base_seed},
                                   "curves": {"measure": "rate", "vary": [ax.field.path for ax in curve_spec.axes],
                                              "budgets": list(curve_spec.axes[1].values),
-                                             "settings": curve_spec.settings, "base_seed": curve_spec.base_seed},
+                                             "settings": curve_spec.settings, "base_seed": curve_spec.base_seed,
+                                             "carry": CARRY_NOTE},
                                   "seeds": "per point, from the base seed and the point id (points.csv, "
                                            "sweep.json)", "quick": args.quick},
                  {"at_budget": table, "curves": curves, "findings": findings,
-                  "sweeps": {"at_budget": _counts(table_summary), "budget_sweep": _counts(curve_summary)}},
+                  "sweeps": {"at_budget": _counts(table_summary), "budget_sweep": _counts(curve_summary),
+                             "budget_sweep_carried": {k: carry_summary[k] for k in
+                                                      ("points_computed", "points_skipped", "points_failed",
+                                                       "rounds")}}},
                  started, time.perf_counter())
     for scheme, f in findings["plateau"].items():
         print(f"{scheme}: highest rate {f['rate']:.3f} ± {f['stderr']:.3f} bits/symbol at {f['budget']:.3g} "
               f"molecules/symbol (using {f['mean_molecules']:.3g})")
-    return 1 if table_summary["points_failed"] or curve_summary["points_failed"] else 0
+    for scheme, f in findings["falls"].items():
+        print(f"{scheme}: largest fall below a smaller budget's value {f['after']['sigmas']:.2f} combined SE "
+              f"(first pass alone: {f['before']['sigmas']:.2f})")
+    failed = table_summary["points_failed"] or curve_summary["points_failed"] or carry_summary["points_failed"]
+    return 1 if failed else 0
 
 
 def _ids(spec) -> set[str]:
@@ -162,16 +193,38 @@ def _table_md(rows) -> list[str]:
     return lines
 
 
-def _curve_rows(path: Path, ids, schemes) -> list[dict]:
-    """The rate sweep's points, by scheme (in the order of ``schemes``) and budget."""
+def _curve_rows(reported: dict, schemes) -> list[dict]:
+    """The reported row of every budget point (``capacity.sweep.carry.carry_laws``), by scheme (in the order of
+    ``schemes``) and budget; ``carried_from`` empty where the first evaluation is reported."""
     rows = []
-    for p in _read(path, ids):
+    for p in reported.values():
         row = {k: p[k] for k in CURVE_FIELDS}
         for key in ("rate_method", "input_law", "lower_bound_method", "upper_bound_method", "flag", "model"):
             row[key] = _text(row[key])
         row["memory"], row["seed"] = int(row["memory"]), int(row["seed"])
+        if not math.isfinite(row["carried_from"]):
+            row["carried_from"] = ""
         rows.append(row)
     return sorted(rows, key=lambda r: (schemes.index(r["scheme"]), r["budget"]))
+
+
+def _falls(rows, schemes) -> dict:
+    """Per scheme, the largest fall of the curve below its value at a smaller budget (bits, combined standard
+    errors, the two budgets), with the first estimates alone (``before``) and as reported (``after``)."""
+    from capacity.sweep.carry import drops
+
+    out = {}
+    for s in schemes:
+        mine = [r for r in rows if r["scheme"] == s]
+        if not mine:
+            continue
+        out[s] = {}
+        for when, rate, se in (("before", "first_rate", "first_stderr"), ("after", "information_rate", "stderr")):
+            d = drops([r[rate] for r in mine], [r[se] for r in mine])
+            out[s][when] = {"drop": d["drop"], "sigmas": d["sigmas"],
+                            "budget": None if d["at"] is None else mine[d["at"]]["budget"],
+                            "below_budget": None if d["below"] is None else mine[d["below"]]["budget"]}
+    return out
 
 
 def _curves(rows, schemes, symbol_interval) -> dict:
