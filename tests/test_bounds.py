@@ -87,6 +87,21 @@ def test_monte_carlo_bounds_agree_with_exact_and_keep_order():
     assert r.rate <= mc["mf"].rate + 3 * np.hypot(r.stderr, mc["mf"].stderr)
 
 
+def test_stratified_monte_carlo_on_a_skewed_law_agrees_with_exact_sums():
+    # a law that sends mostly silence (rare symbols dominate the variance of plain sampling): the stratified
+    # estimates must still agree with the exact sums (brute force, scipy.stats.poisson) within 4 standard errors
+    hits = np.array([[[0.5, 0.25], [0.1, 0.1]], [[0.05, 0.08], [0.45, 0.2]]]) * 4  # L = 1: mf exact as well
+    sym = np.array([[0.0, 0.0], [1.0, 0.0], [0.0, 1.0]])
+    law = np.array([0.9, 0.05, 0.05])
+    bg = np.array([0.1, 0.2])
+    ex = isi_bounds(hits, bg, sym, law, exact_limit=2 * 10**7)
+    mc = isi_bounds(hits, bg, sym, law, exact_limit=0, n_samples=6000, seed=9)
+    for k in ("dfe", "mf"):
+        assert ex[k].method == "exact" and "stratified" in mc[k].message
+        assert mc[k].samples == 2000  # ceil(6000 / 3) contexts
+        assert abs(mc[k].rate - ex[k].rate) < 4 * mc[k].stderr, (k, mc[k].rate, ex[k].rate, mc[k].stderr)
+
+
 def test_monte_carlo_stderr_matches_spread_over_independent_seeds():
     # The Monte Carlo bounds report SE = sample std / sqrt(n) of their own samples. Check each against the
     # spread of k = 24 independent estimates (seeds chosen in advance): with a correct SE and near-normal
@@ -100,9 +115,10 @@ def test_monte_carlo_stderr_matches_spread_over_independent_seeds():
     bg = np.array([0.1, 0.2])
     k, n = 24, 5000
     results = [isi_bounds(hits, bg, sym, law, exact_limit=0, n_samples=n, seed=100 + i) for i in range(k)]
-    lo, hi = f_dist.ppf([0.0005, 0.9995], k - 1, k * (n - 1))
     for key in ("sbs", "dfe", "mf"):
         assert all(r[key].method == "Monte Carlo" for r in results)
+        m = results[0][key].samples  # stratified bounds draw ceil(n / S) contexts, each one sample
+        lo, hi = f_dist.ppf([0.0005, 0.9995], k - 1, k * (m - 1))
         est = np.array([r[key].rate for r in results])
         se = np.array([r[key].stderr for r in results])
         ratio = est.var(ddof=1) / np.mean(se**2)
