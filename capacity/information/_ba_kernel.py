@@ -29,6 +29,7 @@ from typing import NamedTuple
 
 import jax
 import jax.numpy as jnp
+import numpy as np
 from jax import lax
 from jax.scipy.special import logsumexp
 
@@ -61,8 +62,12 @@ def _grid_spec(n_recv: int) -> tuple[str, str]:
 def output_law(w, p):
     """q = p W: (Y,) for a dense matrix; (grid (Y_1, ..., Y_R), overflow scalar) for a :class:`Product`."""
     if isinstance(w, Product):
-        rows, axes = _grid_spec(len(w.factors))
-        return jnp.einsum(f"x,{rows}->{axes}", p, *w.factors, optimize="optimal"), jnp.dot(p, w.overflow)
+        if len(w.factors) == 2:  # one matrix product (cheaper than the general contraction)
+            grid = (w.factors[0] * p[:, None]).T @ w.factors[1]
+        else:
+            rows, axes = _grid_spec(len(w.factors))
+            grid = jnp.einsum(f"x,{rows}->{axes}", p, *w.factors, optimize="optimal")
+        return grid, jnp.dot(p, w.overflow)
     return p @ w
 
 
@@ -70,24 +75,38 @@ def expected_log(w, q):
     """sum_y W(y|x) ln q(y) for every input x (q floored at TINY; W = 0 contributes 0)."""
     if isinstance(w, Product):
         grid, over = q
-        rows, axes = _grid_spec(len(w.factors))
         log_grid = jnp.log(jnp.maximum(grid, TINY))
-        inner = jnp.einsum(f"{rows},{axes}->x", *w.factors, log_grid, optimize="optimal")
+        if len(w.factors) == 2:
+            inner = jnp.sum((w.factors[0] @ log_grid) * w.factors[1], axis=1)
+        else:
+            rows, axes = _grid_spec(len(w.factors))
+            inner = jnp.einsum(f"{rows},{axes}->x", *w.factors, log_grid, optimize="optimal")
         return inner + w.overflow * jnp.log(jnp.maximum(over, TINY))
     return w @ jnp.log(jnp.maximum(q, TINY))
 
 
 def gram(w, q):
-    """G[x, x'] = sum_y W(y|x) W(y|x') / q(y) (q floored at TINY), the negative Hessian of I at q."""
+    """G[x, x'] = sum_y W(y|x) W(y|x') / q(y) (q floored at TINY), the negative Hessian of I at q.
+
+    On a :class:`Product` only the pairs x <= x' are contracted (G is symmetric): for each pair the factors'
+    row products A_j[x] * A_j[x'] meet 1/q in one contraction, then the triangle is mirrored."""
     if isinstance(w, Product):
         grid, over = q
+        n_sym = w.overflow.shape[0]
+        upper, lower = (jnp.asarray(a) for a in _triangle(n_sym))
+        pairs = [a[upper] * a[lower] for a in w.factors]  # (P, Y_j), P = S (S + 1) / 2
+        inv = 1.0 / jnp.maximum(grid, TINY)
         axes = _AXES[: len(w.factors)]
-        spec = ",".join(f"x{a},z{a}" for a in axes)
-        pairs = [f for a in w.factors for f in (a, a)]
-        inner = jnp.einsum(f"{spec},{axes}->xz", *pairs, 1.0 / jnp.maximum(grid, TINY), optimize="optimal")
-        return inner + jnp.outer(w.overflow, w.overflow) / jnp.maximum(over, TINY)
+        g = jnp.einsum(",".join("p" + a for a in axes) + f",{axes}->p", *pairs, inv, optimize="optimal")
+        g = g + w.overflow[upper] * w.overflow[lower] / jnp.maximum(over, TINY)
+        full = jnp.zeros((n_sym, n_sym), dtype=g.dtype).at[upper, lower].set(g)
+        return full.at[lower, upper].set(g)
     wn = w / jnp.sqrt(jnp.maximum(q, TINY))[None, :]
     return wn @ wn.T
+
+
+def _triangle(n: int):
+    return np.triu_indices(n)
 
 
 class Evaluation(NamedTuple):
