@@ -150,8 +150,27 @@ def test_schemes_study():
             (float(m["lower_bound"]), q[3]), (float(m["upper_bound"]), q[4]), (float(s["information_rate"]), q[5]),
             (float(s["stderr"]), q[6]), (float(s["lower_bound"]), q[7]), (float(s["upper_bound"]), q[8])])
     curves = _rows("results/schemes/curves.csv")
-    peak = max((r for r in curves if r["scheme"] == "multiplex"), key=lambda r: float(r["information_rate"]))
-    q = _quoted(r"multiplex peaks at \*\*([\d.]+) ± ([\d.]+) bits/symbol at a\s+budget of (\d+)\*\* "
-                r"\(([\d.]+) bits/s\)")
+    multiplex = [r for r in curves if r["scheme"] == "multiplex"]
+    peak = max(multiplex, key=lambda r: float(r["information_rate"]))
+    q = _quoted(r"multiplex at [\d.]+–[\d.]+ bits/symbol from \d+ on, highest \*\*([\d.]+) ±\s+([\d.]+) "
+                r"bits/symbol at a budget of (\d+)\*\* \(([\d.]+) bits/s\) while using only (\d+) molecules")
     _check([(float(peak["information_rate"]), q[0]), (float(peak["stderr"]), q[1]), (float(peak["budget"]), q[2]),
-            (float(peak["bits_per_second"]), q[3])])
+            (float(peak["bits_per_second"]), q[3]), (float(peak["mean_molecules"]), q[4])])
+    # the falls of the curves below a smaller budget's value: the first pass alone, and what is left after
+    # carrying laws to larger budgets (schemes.json, findings.falls)
+    falls = json.loads((ROOT / "results/schemes/schemes.json").read_text())["results"]["findings"]["falls"]
+    q = _quoted(r"fell\s+by up to ([\d.]+) combined standard errors \(multiplex from \*\*([\d.]+) ± ([\d.]+) at "
+                r"(\d+) to ([\d.]+) ± ([\d.]+) at (\d+)\*\*\)")
+    before = falls["multiplex"]["before"]
+    hi = next(r for r in multiplex if float(r["budget"]) == before["below_budget"])
+    lo = next(r for r in multiplex if float(r["budget"]) == before["budget"])
+    _check([(max(f["before"]["sigmas"] for f in falls.values()), q[0]), (float(hi["first_rate"]), q[1]),
+            (float(hi["first_stderr"]), q[2]), (float(hi["budget"]), q[3]), (float(lo["first_rate"]), q[4]),
+            (float(lo["first_stderr"]), q[5]), (float(lo["budget"]), q[6])])
+    q = _quoted(r"the largest fall left is \*\*([\d.]+) combined standard errors\*\* \(hybrid, (\d+) against "
+                r"(\d+)\), then\s+amplitude ([\d.]+), multiplex ([\d.]+), spatial none")
+    after = {s: f["after"] for s, f in falls.items()}
+    assert max(after, key=lambda s: after[s]["sigmas"]) == "hybrid" and after["spatial"]["sigmas"] == 0
+    _check([(after["hybrid"]["sigmas"], q[0]), (after["hybrid"]["budget"], q[1]),
+            (after["hybrid"]["below_budget"], q[2]), (after["amplitude"]["sigmas"], q[3]),
+            (after["multiplex"]["sigmas"], q[4])])
