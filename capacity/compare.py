@@ -131,6 +131,22 @@ def compare_schemes(scenario, response, schemes=None, *, budget=None, n_symbols=
     return records
 
 
+#: columns of a budget-sweep row that belong to the budget itself, not to the input law used for the rate with ISI
+_BUDGET_OWN = ("budget", "single_slot_capacity", "certified_gap")
+
+
+def carried_row(best_row: dict, row: dict) -> dict:
+    """The row of a smaller budget's law carried to ``row``'s budget (its rate with ISI was higher).
+
+    That law is feasible at the larger budget and, evaluated there on the same random numbers (same seed, same
+    channel, same law), gives the same rate estimate and bounds, so its rate columns are taken over. The columns
+    that depend on the budget itself (the budget and the single-slot capacity under it with its certified gap,
+    ``_BUDGET_OWN``) stay those computed at this budget."""
+    out = dict(best_row, input_law=f"carried from budget {best_row['budget']:g} ({best_row['input_law']})")
+    out.update({k: row[k] for k in _BUDGET_OWN})
+    return out
+
+
 def budget_sweep(scenario, response, budgets, schemes=None, *, n_symbols=5_000, n_runs=4, seed=None,
                  csv_path: str | Path | None = None, progress: Callable | None = None, effort=None) -> dict:
     """Rate-versus-budget curves of the best rate found at each budget, non-decreasing by construction.
@@ -165,10 +181,7 @@ def budget_sweep(scenario, response, budgets, schemes=None, *, n_symbols=5_000, 
                                    n_runs=n_runs, seed=seed, candidate_laws=cands, effort=effort)
                 row = _row(scheme, float(b), rates)
                 if best_row is not None and row["information_rate"] < best_row["information_rate"]:
-                    # the law found at a smaller budget is feasible here and, on the same random numbers, gives
-                    # the same estimate: the best rate at this budget is at least that
-                    row = dict(best_row, budget=float(b),
-                               input_law=f"carried from budget {best_row['budget']:g} ({best_row['input_law']})")
+                    row = carried_row(best_row, row)
                 else:
                     best_row, best_law = row, np.asarray(rates.iid_input)
                 c = curves[scheme]

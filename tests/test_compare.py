@@ -283,3 +283,30 @@ def test_every_scheme_is_reported_and_its_capacity_matches_plain_blahut_arimoto(
     assert spatial["details"]["alphabet"] == [[0.0, 0.0], [PEAK, 0.0], [0.0, PEAK]]
     multiplex = records[SCHEMES.index("multiplex")]
     assert multiplex["details"]["alphabet"] == [[0.0, 0.0], [0.0, PEAK], [PEAK, 0.0], [PEAK, PEAK]]
+
+
+def test_a_carried_row_keeps_the_single_slot_capacity_of_its_own_budget():
+    # the carried law's rate columns come from the smaller budget (same law, same seed: the same estimate), but the
+    # single-slot capacity is a function of the budget itself: it must be this budget's (checked against
+    # scipy.optimize on the on-off channel, as in the test above)
+    from capacity.compare import _row, carried_row
+    from capacity.rates import link_rates
+    from capacity.schemes.builders import build_alphabet
+
+    background, hit = 0.5, 0.25
+    scen = _scenario([background])
+    alphabet = build_alphabet(scen.signalling, 1)
+    rows = {}
+    for b in (2.0, 5.0):
+        rates = link_rates(scen, _response([[[hit]]]), alphabet, budget=b, n_symbols=1000, n_runs=2, seed=3)
+        rows[b] = _row("amplitude", b, rates)
+    out = carried_row(rows[2.0], rows[5.0])
+    assert out["budget"] == 5.0
+    assert out["single_slot_capacity"] == rows[5.0]["single_slot_capacity"]
+    assert out["certified_gap"] == rows[5.0]["certified_gap"]
+    best, _ = _best_onoff(background, hit * PEAK, p_max=5.0 / PEAK)
+    assert out["single_slot_capacity"] == pytest.approx(best, abs=1e-8)
+    assert out["single_slot_capacity"] > rows[2.0]["single_slot_capacity"]  # a larger budget carries more
+    for k in ("information_rate", "stderr", "lower_bound", "upper_bound", "mean_molecules", "bits_per_second"):
+        assert out[k] == rows[2.0][k]
+    assert out["input_law"].startswith("carried from budget 2")
