@@ -233,6 +233,12 @@ def test_extended_grid_computes_only_new_points(scenario_file, cache_dir, tmp_pa
     assert summary["points_skipped"] == 4 and summary["points_computed"] == 2
     extended = _rows(tmp_path)
     assert len(extended) == 6 and all(extended[k] == v for k, v in rows.items())
+    again = run("20,50,80")
+    assert again["points_computed"] == 0 and again["points_skipped"] == 6
+    # sweep.json keeps every run: a re-run that computes nothing does not erase how the points were made
+    runs = json.loads((tmp_path / "sweep.json").read_text())["runs"]
+    assert [(r["points_computed"], r["points_skipped"]) for r in runs] == [(4, 0), (2, 4), (0, 6)]
+    assert all(r["wall_seconds"] >= 0 and r["written"] for r in runs)
 
 
 def test_two_workers_give_the_serial_numbers(reference, scenario_file, cache_dir, tmp_path):

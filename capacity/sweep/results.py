@@ -3,10 +3,12 @@
 from __future__ import annotations
 
 import datetime
+import json
 import math
 import platform
 import sys
 from importlib import metadata
+from pathlib import Path
 
 import numpy as np
 
@@ -83,6 +85,22 @@ def best_points(spec, points, rows: dict, merits: list[str]) -> dict:
             entry["stderr"] = rows[p.point_id]["stderr"] * scale
         out[name] = entry
     return out
+
+
+_RUN_KEYS = ("written", "points_computed", "points_skipped", "points_failed", "wall_seconds", "cluster")
+
+
+def run_history(path, new: dict) -> list[dict]:
+    """Every run of the sweep in this folder, oldest first: the ``runs`` of the previous ``sweep.json`` (or its
+    top-level counts, for a record written before runs were listed) and then ``new``'s counts. A re-run that
+    finds every point finished adds a run with nothing computed instead of erasing how the points were made."""
+    previous = []
+    try:
+        old = json.loads(Path(path).read_text())
+        previous = old["runs"] if isinstance(old.get("runs"), list) else [{k: old.get(k) for k in _RUN_KEYS}]
+    except (OSError, ValueError, AttributeError, KeyError):
+        previous = []
+    return [*previous, {k: new.get(k) for k in _RUN_KEYS}]
 
 
 def record(spec, points, rows: dict, *, computed: int, skipped: int, failures: list, best: dict, wall: float,

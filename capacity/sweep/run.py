@@ -106,6 +106,7 @@ def run_sweep(spec, out, *, workers: int | None = None, scheduler: str | None = 
     wall = time.perf_counter() - started
     record = results.record(spec, points, rows, computed=len(todo) - len(failures), skipped=skipped,
                             failures=failures, best=best, wall=wall, cluster=cluster, files=files)
+    record["runs"] = results.run_history(out / "sweep.json", record)
     from capacity.cli._common import dump_json
 
     dump_json(record, out / "sweep.json")
