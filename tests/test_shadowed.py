@@ -196,6 +196,10 @@ def test_validity_notes():
     close = np.array([[12.0, 0, 0], [12, 8.3, 0]]) * UM
     assert any("gap" in n for n in validity_notes(e[:1], close, np.array([4.0, 4.0]) * UM, 1e-10, 0.0))
     assert any("radius" in n for n in validity_notes(e[:1], c[:2], np.array([1.0, 5.0]) * UM, 1e-10, 0.0))
+    # the edge: radii 2.5 and 6 um are the validated ratio 2.4 itself (6e-6 / 2.5e-6 = 2.4000000000000004 in
+    # floating point), so no note; just beyond it, a note
+    assert not any("radius" in n for n in validity_notes(e[:1], c[:2], np.array([2.5, 6.0]) * UM, 1e-10, 0.0))
+    assert any("radius" in n for n in validity_notes(e[:1], c[:2], np.array([2.5, 6.01]) * UM, 1e-10, 0.0))
     behind = np.array([[12.0, 0, 0], [20.05, 0, 0]]) * UM  # gap 1.05 um = 0.35 radius right behind: flagged
     assert any("shadow" in n for n in validity_notes(e[:1], behind, np.array([4.0, 3.0]) * UM, 1e-10, 0.0))
     beside = np.array([[12.0, 3.525, 0], [12, -3.525, 0]]) * UM  # same gap side by side: inside measured range
