@@ -176,3 +176,23 @@ def test_schemes_study():
     assert after[q[6]]["sigmas"] == 0 and after[q[7]]["sigmas"] == 0
     _check([(after[worst]["sigmas"], q[0]), (after[worst]["budget"], q[2]), (after[worst]["below_budget"], q[3]),
             (after[q[4]]["sigmas"], q[5])])
+
+
+def test_validation_table():
+    # the eight layouts of studies/validate_responses.py, in the README's order and wording
+    names = {"side by side": "side_by_side", "one behind another": "one_behind", "three around one emitter":
+             "three_around", "unequal radii": "unequal_radii", "close pair": "close_spacing",
+             "emitter 0.5 radius from a receiver": "emitter_near_receiver",
+             "small sphere hidden close behind a larger one": "hidden_close",
+             "degradation k = 2/s, two emitters": "degradation_two_emitters"}
+    rows = {r["layout"]: r for r in _rows("results/validation/summary.csv")}
+    checked = set()
+    for line in README_LINES:
+        m = re.match(r"\s*\| ([^|(]+?)(?: \([^|]*\))? \| \**([\d.]+) %\** \| ([\d.]+) % \| ([\d.]+) \|$", line)
+        if not m or m.group(1) not in names:
+            continue
+        r = rows[names[m.group(1)]]
+        _check([(100 * float(r["max_total_rel_error"]), m.group(2)), (100 * float(r["total_rel_se_at_worst"]),
+                m.group(3)), (float(r["max_slot_abs_error"]), m.group(4))])
+        checked.add(m.group(1))
+    assert checked == set(names)
